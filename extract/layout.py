@@ -1,0 +1,261 @@
+"""Reading a layout file: one cell, flattened, in µm.
+
+GDSII (``.gds``) and OASIS (``.oas``) are read with gdstk.  The chosen
+cell is flattened exactly (references with rotation, magnification,
+x-reflection and array repetitions; paths become polygons; labels move
+with their cell), and every coordinate is converted to µm using the
+file's own user unit, then snapped to the file's database grid.
+
+Problems — a missing or unreadable file, a truncated or corrupt stream, a
+reference cycle, a reference to a cell that is not in the file, a cell
+name that does not exist — raise :class:`extract.errors.InputError`.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from extract.errors import InputError
+
+__all__ = ["FlatLabel", "FlatLayout", "read_layout", "top_cells"]
+
+
+@dataclass(frozen=True)
+class FlatLabel:
+    """A text label after flattening: its text, position (µm) and
+    ``(layer, texttype)``."""
+
+    text: str
+    x: float
+    y: float
+    layer: tuple[int, int]
+
+
+@dataclass
+class FlatLayout:
+    """The flattened geometry of one cell.
+
+    Attributes
+    ----------
+    path : str
+        The file it came from.
+    cell : str
+        The cell name.
+    grid_um : float
+        The file's database unit in µm (coordinates are multiples of it).
+    polygons : dict of (int, int) to list of ndarray
+        Per ``(layer, datatype)``, each polygon an (n, 2) array in µm.
+    labels : list of FlatLabel
+    """
+
+    path: str
+    cell: str
+    grid_um: float
+    polygons: dict[tuple[int, int], list[np.ndarray]] = field(default_factory=dict)
+    labels: list[FlatLabel] = field(default_factory=list)
+
+
+class _QuietNative:
+    """Send the C library's own stderr chatter to a scratch file while
+    gdstk reads, so that a bad file yields one clean line from us."""
+
+    def __enter__(self):
+        sys.stderr.flush()
+        self._saved = os.dup(2)
+        self._tmp = tempfile.TemporaryFile()
+        os.dup2(self._tmp.fileno(), 2)
+        self._warn = warnings.catch_warnings(record=True)
+        self.caught = self._warn.__enter__()
+        warnings.simplefilter("always")
+        return self
+
+    def __exit__(self, *exc):
+        self._warn.__exit__(*exc)
+        sys.stderr.flush()
+        os.dup2(self._saved, 2)
+        os.close(self._saved)
+        self._tmp.seek(0)
+        self.native = self._tmp.read().decode("utf-8", "replace")
+        self._tmp.close()
+        return False
+
+
+def _check_gds_stream(path: str, data: bytes) -> None:
+    """Walk the GDSII record structure before gdstk sees it.
+
+    Every record starts with a 2-byte big-endian length (even, at least 4)
+    and a record type; the stream must start with HEADER (0x00) and reach
+    ENDLIB (0x04).  This catches truncated and corrupt files with the byte
+    offset of the bad record.
+    """
+    n = len(data)
+    pos = 0
+    first = True
+    while pos + 4 <= n:
+        length = int.from_bytes(data[pos : pos + 2], "big")
+        rtype = data[pos + 2]
+        if length == 0 and not first:
+            # Zero padding after ENDLIB is allowed; anywhere else is corrupt.
+            break
+        if length < 4 or length % 2:
+            raise InputError(path, f"corrupt GDSII record (length {length})", f"byte {pos}")
+        if first and rtype != 0x00:
+            raise InputError(path, "not a GDSII stream (no HEADER record)", "byte 0")
+        if pos + length > n:
+            raise InputError(path, "truncated GDSII file (record runs past the end)", f"byte {pos}")
+        first = False
+        if rtype == 0x04:  # ENDLIB
+            return
+        pos += length
+    raise InputError(path, "truncated GDSII file (no ENDLIB record)", f"byte {pos}")
+
+
+def _load_library(path: str):
+    import gdstk
+
+    if not os.path.exists(path):
+        raise InputError(path, "file not found")
+    if os.path.isdir(path):
+        raise InputError(path, "is a directory, not a layout file")
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except OSError as exc:
+        raise InputError(path, f"cannot read: {exc.strerror}") from None
+    ext = os.path.splitext(path)[1].lower()
+    is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
+    if not is_oas:
+        _check_gds_stream(path, data)
+    with _QuietNative() as quiet:
+        try:
+            lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)
+        except Exception:  # gdstk raises OSError/RuntimeError with no detail
+            lib = None
+    if lib is None:
+        detail = quiet.native.strip().splitlines()
+        why = detail[-1].replace("[GDSTK]", "").strip() if detail else "unreadable"
+        kind = "OASIS" if is_oas else "GDSII"
+        raise InputError(path, f"cannot read {kind} file: {why}")
+    return lib
+
+
+def _reference_graph(path: str, lib) -> dict[str, list[str]]:
+    """Cell name -> names of the cells it references; missing cells raise."""
+    names = {c.name for c in lib.cells}
+    graph = {}
+    for c in lib.cells:
+        children = []
+        for ref in c.references:
+            child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
+            if child not in names:
+                raise InputError(path, f"references cell {child!r}, which is not in the file", f"cell {c.name}")
+            children.append(child)
+        graph[c.name] = children
+    return graph
+
+
+def _find_cycle(graph: dict[str, list[str]], start: str) -> list[str] | None:
+    """A reference cycle reachable from ``start`` (as a list of names), or None.
+
+    Iterative depth-first search, O(cells + references).
+    """
+    state: dict[str, int] = {}
+    stack = [(start, iter(graph[start]))]
+    trail = [start]
+    state[start] = 1
+    while stack:
+        name, it = stack[-1]
+        child = next(it, None)
+        if child is None:
+            stack.pop()
+            trail.pop()
+            state[name] = 2
+            continue
+        if state.get(child) == 1:
+            return trail[trail.index(child) :] + [child]
+        if child not in state:
+            state[child] = 1
+            trail.append(child)
+            stack.append((child, iter(graph[child])))
+    return None
+
+
+def top_cells(graph: dict[str, list[str]]) -> list[str]:
+    """Cells that no other cell references, sorted.
+
+    >>> top_cells({"A": [], "B": ["A"], "C": []})
+    ['B', 'C']
+    """
+    used = {child for children in graph.values() for child in children}
+    return sorted(name for name in graph if name not in used)
+
+
+def read_layout(path: str, cell: str | None = None, layers=None) -> FlatLayout:
+    """Read ``path`` and flatten one cell.
+
+    Parameters
+    ----------
+    path : str
+        A GDSII or OASIS file.
+    cell : str, optional
+        The cell to read; when omitted the file must have exactly one top cell.
+    layers : iterable of (int, int), optional
+        Only these ``(layer, datatype)`` pairs are kept (all when None).
+
+    Returns
+    -------
+    FlatLayout
+
+    Raises
+    ------
+    InputError
+        Missing/unreadable/corrupt file, unknown cell, no single top cell,
+        a reference cycle or a reference to a missing cell.
+
+    Notes
+    -----
+    gdstk does the flattening (``Cell.get_polygons`` / ``get_labels`` over
+    all depths with repetitions applied).  Coordinates are snapped to the
+    file's database unit so that transforms such as 90° rotations do not
+    leave 1e-16 µm slivers.  Cost is linear in the flattened shape count.
+    """
+    lib = _load_library(path)
+    graph = _reference_graph(path, lib)
+    if cell is None:
+        tops = top_cells(graph)
+        if len(tops) != 1:
+            if not tops:
+                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
+            listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
+            raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
+        cell = tops[0]
+    if cell not in graph:
+        raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
+    cycle = _find_cycle(graph, cell)
+    if cycle:
+        raise InputError(path, "reference cycle: " + " -> ".join(cycle), f"cell {cell}")
+
+    top = next(c for c in lib.cells if c.name == cell)
+    grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3
+    wanted = None if layers is None else {tuple(x) for x in layers}
+    flat = FlatLayout(path=path, cell=cell, grid_um=grid_um)
+    with _QuietNative():
+        polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        labels = top.get_labels(apply_repetitions=True, depth=None)
+    for poly in polys:
+        key = (int(poly.layer), int(poly.datatype))
+        if wanted is not None and key not in wanted:
+            continue
+        pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
+        if len(pts) >= 3:
+            flat.polygons.setdefault(key, []).append(pts)
+    for lab in labels:
+        x, y = (round(v / grid_um) * grid_um for v in lab.origin)
+        flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
+    return flat

@@ -16,7 +16,11 @@ bulk on both sides, which a circuit simulator rightly sees as nothing.
 
 from __future__ import annotations
 
+import dataclasses
+
+import gdstk
 import pytest
+from drawing import TECH, nmos_stack, write
 from ngspice_run import run_deck
 from writer_fixtures import (
     AC_EXPECTED_FF,
@@ -27,7 +31,9 @@ from writer_fixtures import (
     parse_spice,
 )
 
+from extract.pipeline import extract_layout
 from extract.spice_out import spice_net_names, supply_nets, write_spice
+from extract.techfile import load_tech
 
 pytestmark = pytest.mark.ngspice
 
@@ -40,6 +46,14 @@ def measure(circuit, tech):
     nets = [n for n in sorted(circuit.nets) if n not in bulk]
     values = run_deck(ac_deck(text, tech, [names[n] for n in nets]))
     return {n: values[f"c_{i}"] / 1e-15 for i, n in enumerate(nets)}
+
+
+def level1_view(tech):
+    """The tech with cjswg = cjsw and pbsw = pb: SPICE level 1 has a single
+    sidewall coefficient for the whole PD/PS (gate edge included) and one
+    built-in potential, so only such a tech can be compared with it."""
+    mos = {t: dataclasses.replace(p, cjswg=p.cjsw, pbsw=p.pb) for t, p in tech.mos.items()}
+    return dataclasses.replace(tech, mos=mos)
 
 
 def test_hand_built_stage_capacitance_matches_hand_calculation():
@@ -91,3 +105,25 @@ def test_netlist_loads_and_operating_point_converges():
     # (check: sqrt(1.9493) = 1.39617, 0.4*(1.39617 - 0.894427) = 0.20070,
     #  1.8 - 0.45 - 0.20070 = 1.14930).
     assert values["vn2"] == pytest.approx(1.1493, abs=5e-3)
+
+
+def test_extracted_stack_matches_ngspice_and_hand(tmp_path):
+    """The two-device stack drawn in tests/extract/drawing.py, extracted and
+    written: ngspice must find the hand-calculated junction + wire values.
+
+    Hand (dsk18 nmos cj 0.95 fF/um^2, cjsw = cjswg 0.22 fF/um; metal1 0.035
+    fF/um^2 + 0.045 fF/um; poly 0.09 + 0.04; C = CJ*A + CJSW*P, the SPICE
+    area-perimeter junction model, and plate + fringe for wires):
+      X    : piece 1.0 x 1.0, field 3.0, gate edge 1.0 -> 0.95 + 0.22*4.0 = 1.83
+             metal1 0.4 x 0.4, outline 1.6 -> 0.035*0.16 + 0.045*1.6 = 0.0776
+      net1 : piece 0.62 x 1.0, field 1.24, gate edges 2.0 -> 0.589 + 0.22*3.24 = 1.3018
+      A, B : poly outside diffusion 0.18 x 0.6, outline 3.56 - 2.0
+             -> 0.09*0.108 + 0.04*1.56 = 0.07212
+    """
+    tech = level1_view(load_tech(TECH))
+    circuit = extract_layout(write(tmp_path, "stack.gds", nmos_stack(gdstk.Cell("STACK"))), tech)
+    hand = {"X": 1.83 + 0.0776, "net1": 1.3018, "A": 0.07212, "B": 0.07212}
+    measured = measure(circuit, tech)
+    assert set(measured) == set(hand)
+    for name, expected in hand.items():
+        assert measured[name] == pytest.approx(expected, rel=0.01), name

@@ -145,3 +145,25 @@ def test_long_port_lists_continue():
     text = write_spice(Circuit("wide", nets, []), level1_tech())
     assert all(len(line) <= 80 for line in text.splitlines() if not line.startswith("*"))
     assert parse_spice(text)["ports"] == sorted(nets)
+
+
+def test_reads_back_through_the_schematic_reader(written):
+    """The netlist is valid input for the project's own SPICE reader
+    (extract.schematic), which rebuilds the devices and, from AD/AS/PD/PS and
+    the C lines, each signal net's junction + wire capacitance.  The rails'
+    own wire capacitance is not in the netlist (it is to AC ground)."""
+    from extract.schematic import parse_schematic
+
+    circuit, tech, text = written
+    back = parse_schematic(text, "written.sp", tech)
+    fields = ("type", "drain", "gate", "source", "w_um", "l_um", "ad_um2", "as_um2", "pd_um", "ps_um")
+    for d in circuit.devices:
+        got = back.device(d.name)
+        assert [getattr(got, f) for f in fields] == pytest.approx([getattr(d, f) for f in fields])
+    for name, net in circuit.nets.items():
+        if net.role in ("power", "ground"):
+            continue
+        got = back.nets[name.replace("<", "_").replace(">", "_").replace(" ", "_")]
+        # Hand table (writer_fixtures): e.g. n1 0.875 + 0.05, OUT 3.95 + 0.60.
+        assert got.cap.junction + got.cap.wire == pytest.approx(net.cap.junction + net.cap.wire)
+        assert got.labelled == net.labelled

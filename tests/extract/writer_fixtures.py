@@ -57,13 +57,17 @@ def level1_tech() -> Tech:
 # A footed domino AND2: precharge MP1 (CLK), stack MN1 (A) - MN2 (B) - MN3
 # (footer, CLK), output inverter MP2/MN4.  All L = 0.18 um.  Diffusion is
 # drawn as W x 0.5 um where contacted and W x 0.25 um between two gates of
-# the stack; a shared piece is given to one device only (the other gets 0).
+# the stack.  A shared piece is given to one device (area, field edges and
+# its own gate edge); the other device gets AD = 0 and only its own gate
+# edge as perimeter (the extractor's convention, extract/pipeline.py).
 #
 #   piece            W    len   area  field perim      gate perim  -> AD/AS, PD/PS
 #   DYN  (MP1 d)     1.0  0.5   0.5   0.5+0.5+1 = 2.0  1.0            0.5, 3.0
 #   DYN  (MN1 d)     1.0  0.5   0.5   2.0              1.0            0.5, 3.0
-#   n1   (MN1 s)     1.0  0.25  0.25  0.25+0.25 = 0.5  1+1 = 2.0      0.25, 2.5
-#   n2   (MN2 s)     1.0  0.25  0.25  0.5              2.0            0.25, 2.5
+#   n1   (MN1 s)     1.0  0.25  0.25  0.25+0.25 = 0.5  1+1 = 2.0      0.25, 0.5+1.0 = 1.5
+#        (MN2 d)                                                      0,    1.0
+#   n2   (MN2 s)     1.0  0.25  0.25  0.5              2.0            0.25, 1.5
+#        (MN3 d)                                                      0,    1.0
 #   VSS  (MN3 s)     1.0  0.5   0.5   2.0              1.0            0.5, 3.0
 #   VSS  (MN4 s)     1.0  0.5   0.5   2.0              1.0            0.5, 3.0
 #   VDD  (MP1 s)     1.0  0.5   0.5   2.0              1.0            0.5, 3.0
@@ -131,9 +135,9 @@ def domino_circuit() -> Circuit:
                          labels=(name,) if name in labelled else (), labelled=name in labelled)
     L = 0.18
     devices = [
-        Device("MN1", "nmos", "DYN", "A", "n1", 1.0, L, 0.5, 0.25, 3.0, 2.5),
-        Device("MN2", "nmos", "n1", "B", "n2", 1.0, L, 0.0, 0.25, 0.0, 2.5),
-        Device("MN3", "nmos", "n2", "CLK", "VSS", 1.0, L, 0.0, 0.5, 0.0, 3.0),
+        Device("MN1", "nmos", "DYN", "A", "n1", 1.0, L, 0.5, 0.25, 3.0, 1.5),
+        Device("MN2", "nmos", "n1", "B", "n2", 1.0, L, 0.0, 0.25, 1.0, 1.5),
+        Device("MN3", "nmos", "n2", "CLK", "VSS", 1.0, L, 0.0, 0.5, 1.0, 3.0),
         Device("MN4", "nmos", "OUT", "DYN", "VSS", 1.0, L, 0.5, 0.5, 3.0, 3.0),
         Device("MP1", "pmos", "DYN", "CLK", "VDD", 1.0, L, 0.5, 0.5, 3.0, 3.0),
         Device("MP2", "pmos", "OUT", "DYN", "VDD", 2.0, L, 1.0, 1.0, 5.0, 5.0),

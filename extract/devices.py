@@ -21,7 +21,7 @@ import numpy as np
 import shapely
 
 from extract.errors import Finding
-from extract.geometry import inside, parts, representative_points
+from extract.geometry import inside_any, parts, representative_points, subtract_overlapping
 
 __all__ = ["DiffusionPieces", "Channels", "device_type", "find_channels"]
 
@@ -88,7 +88,7 @@ def device_type(points: np.ndarray, pimplant, nimplant, nwell) -> np.ndarray:
     Parameters
     ----------
     points : ndarray (n, 2)
-    pimplant, nimplant, nwell : shapely geometry (may be empty)
+    pimplant, nimplant, nwell : ndarray of Polygon (may be empty)
 
     Returns
     -------
@@ -97,14 +97,15 @@ def device_type(points: np.ndarray, pimplant, nimplant, nwell) -> np.ndarray:
     Examples
     --------
     >>> import numpy as np
-    >>> from shapely import box, Polygon
+    >>> from shapely import box
     >>> pts = np.array([[0.5, 0.5], [5.5, 0.5], [9.5, 0.5]])
-    >>> device_type(pts, Polygon(), box(5, 0, 6, 1), box(0, 0, 1, 1)).tolist()
+    >>> none = np.array([], dtype=object)
+    >>> device_type(pts, none, np.array([box(5, 0, 6, 1)]), np.array([box(0, 0, 1, 1)])).tolist()
     ['pmos', 'nmos', 'nmos']
     """
-    in_p = inside(pimplant, points)
-    in_n = inside(nimplant, points)
-    in_w = inside(nwell, points)
+    in_p = inside_any(pimplant, points)
+    in_n = inside_any(nimplant, points)
+    in_w = inside_any(nwell, points)
     is_p = in_p | (~in_n & in_w)
     return np.where(is_p, "pmos", "nmos")
 
@@ -116,10 +117,10 @@ def find_channels(layer: str, diffusion, poly, implants, tol: float = 1e-6):
     ----------
     layer : str
         Name of the diffusion layer (for messages).
-    diffusion, poly : shapely geometry
-        Merged shapes of the diffusion layer and of all poly layers.
-    implants : tuple of geometry
-        ``(pimplant, nimplant, nwell)``, each merged (may be empty).
+    diffusion, poly : ndarray of Polygon
+        Merged (disjoint) shapes of the diffusion layer and of all poly layers.
+    implants : tuple of ndarray of Polygon
+        ``(pimplant, nimplant, nwell)`` shapes (may be empty).
     tol : float
         Shared edges shorter than this (µm) do not count (corner touches).
 
@@ -133,21 +134,30 @@ def find_channels(layer: str, diffusion, poly, implants, tol: float = 1e-6):
 
     Notes
     -----
-    Two overlays (intersection and difference) over the merged layers,
-    an STR-tree query of channels against pieces and one vectorised
-    boundary intersection per touching pair: O(n log n) in the number of
-    shapes, no Python loop over pairs.
+    STR-tree queries pair each diffusion shape with the poly shapes that
+    meet it; one vectorised intersection per pair gives the channels and
+    one vectorised difference per diffusion shape the pieces; a query of
+    channels against pieces and one boundary intersection per touching
+    pair give the shared edges.  O(n log n) in the number of shapes, no
+    Python loop over pairs.
 
     Examples
     --------
-    >>> from shapely import box, Polygon
-    >>> ch, pc, f = find_channels("active", box(0, 0, 3, 1), box(1, -0.5, 1.2, 1.5),
-    ...                           (Polygon(), Polygon(), Polygon()))
+    >>> from shapely import box
+    >>> none = np.array([], dtype=object)
+    >>> ch, pc, f = find_channels("active", np.array([box(0, 0, 3, 1)]),
+    ...                           np.array([box(1, -0.5, 1.2, 1.5)]), (none, none, none))
     >>> [round(float(v), 6) for v in (ch.w[0], ch.l[0])], len(pc.geoms), f
     ([1.0, 0.2], 2, [])
     """
-    channel_geoms = parts(shapely.intersection(diffusion, poly))
-    piece_geoms = parts(shapely.difference(diffusion, poly))
+    diffusion = np.asarray(diffusion, dtype=object)
+    poly = np.asarray(poly, dtype=object)
+    if len(diffusion) and len(poly):
+        di, pj = shapely.STRtree(poly).query(diffusion, predicate="intersects")
+        channel_geoms = _flat_parts(shapely.intersection(diffusion[di], poly[pj]))
+    else:
+        channel_geoms = np.empty(0, dtype=object)
+    piece_geoms = _flat_parts(subtract_overlapping(diffusion, poly))
     findings: list[Finding] = []
     ch_pts = representative_points(channel_geoms)
     pc_pts = representative_points(piece_geoms)
@@ -206,3 +216,16 @@ def find_channels(layer: str, diffusion, poly, implants, tol: float = 1e-6):
         points=pc_pts,
     )
     return channels, pieces, findings
+
+
+def _flat_parts(geoms) -> np.ndarray:
+    """All polygon parts of an array of geometries (non-polygons dropped)."""
+    if len(geoms) == 0:
+        return np.empty(0, dtype=object)
+    flat = shapely.get_parts(geoms)
+    if not len(flat):
+        return np.empty(0, dtype=object)
+    types = shapely.get_type_id(flat)
+    if (types != 3).any():
+        flat = np.concatenate([flat[types == 3]] + [parts(g) for g in flat[(types == 6) | (types == 7)]])
+    return flat[shapely.area(flat) > 0]

@@ -3,7 +3,7 @@
 Steps, each a pure function of the one before:
 
 1. :func:`extract.layout.read_layout` — flatten the cell, µm.
-2. merge every layer's shapes (:func:`extract.geometry.merge`);
+2. merge every layer's shapes (:func:`extract.geometry.merge_parts`);
 3. :func:`extract.devices.find_channels` — transistors and source/drain pieces;
 4. :func:`extract.connectivity.connect` / ``name_nets`` — nets and names;
 5. capacitance per net with :mod:`extract.capacitance`;
@@ -19,7 +19,7 @@ from extract.capacitance import gate_parts, junction_parts, overlap_per_side, wi
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.connectivity import Conductors, connect, name_nets
 from extract.devices import find_channels
-from extract.geometry import merge, parts, polygons_from_arrays, representative_points
+from extract.geometry import merge_parts, polygons_from_arrays, representative_points, subtract_overlapping
 from extract.layout import FlatLayout, read_layout
 from extract.tech import Tech
 
@@ -52,17 +52,22 @@ def extract_layout(path: str, tech: Tech, cell: str | None = None) -> Circuit:
     return extract_flat(flat, tech)
 
 
-def _layer_shapes(flat: FlatLayout, tech: Tech, grid: float):
-    merged = {}
-    for layer in tech.layers.values():
-        polys = polygons_from_arrays(flat.polygons.get(layer.gds, []))
-        merged[layer.name] = merge(polys, grid) if len(polys) else shapely.Polygon()
-    return merged
+def _layer_shapes(flat: FlatLayout, tech: Tech):
+    """Merged (disjoint) polygons of every tech layer."""
+    return {
+        layer.name: merge_parts(polygons_from_arrays(flat.polygons.get(layer.gds, [])))
+        for layer in tech.layers.values()
+    }
 
 
-def _union(geoms, grid):
-    geoms = [g for g in geoms if not g.is_empty]
-    return merge(geoms, grid) if geoms else shapely.Polygon()
+def _union(arrays):
+    """Merged parts of several layers together."""
+    arrays = [a for a in arrays if len(a)]
+    if not arrays:
+        return np.empty(0, dtype=object)
+    if len(arrays) == 1:
+        return arrays[0]
+    return merge_parts(np.concatenate(arrays))
 
 
 def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
@@ -74,12 +79,12 @@ def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
     O(n log n) in the number of shapes.
     """
     grid = flat.grid_um
-    shapes = _layer_shapes(flat, tech, grid)
+    shapes = _layer_shapes(flat, tech)
     kinds = {name: layer.kind for name, layer in tech.layers.items()}
     of_kind = lambda k: [n for n in tech.layers if kinds[n] == k]  # noqa: E731
-    poly_all = _union([shapes[n] for n in of_kind("poly")], grid)
-    diff_all = _union([shapes[n] for n in of_kind("diffusion")], grid)
-    implants = tuple(_union([shapes[n] for n in of_kind(k)], grid) for k in ("pimplant", "nimplant", "nwell"))
+    poly_all = _union([shapes[n] for n in of_kind("poly")])
+    diff_all = _union([shapes[n] for n in of_kind("diffusion")])
+    implants = tuple(_union([shapes[n] for n in of_kind(k)]) for k in ("pimplant", "nimplant", "nwell"))
 
     findings = []
     chans, pieces = [], []
@@ -98,14 +103,14 @@ def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
         layer_of.extend([pc.layer] * len(pc.geoms))
     wire_layers = [n for n in tech.layers if kinds[n] in ("poly", "metal")]
     for name in wire_layers:
-        p = parts(shapes[name])
+        p = shapes[name]
         geoms.extend(p)
         layer_of.extend([name] * len(p))
     geoms = np.asarray(geoms, dtype=object)
     conductors = Conductors(geoms, np.asarray(layer_of, dtype=object), representative_points(geoms))
     cuts = []
     for name in of_kind("cut"):
-        cuts.append((parts(shapes[name]), tech.layers[name].joins))
+        cuts.append((shapes[name], tech.layers[name].joins))
     net_of = connect(conductors, cuts)
     n_nets = int(net_of.max()) + 1 if len(net_of) else 0
 
@@ -149,10 +154,9 @@ def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
         if len(idx) == 0:
             continue
         g = geoms[idx]
-        if kinds[name] == "poly" and not diff_all.is_empty:
-            shapely.prepare(diff_all)
-            a = shapely.area(shapely.difference(g, diff_all))
-            p = shapely.length(shapely.difference(shapely.boundary(g), diff_all))
+        if kinds[name] == "poly" and len(diff_all):
+            a = shapely.area(subtract_overlapping(g, diff_all))
+            p = shapely.length(subtract_overlapping(shapely.boundary(g), diff_all))
         else:
             a, p = shapely.area(g), shapely.length(g)
         layer = tech.layers[name]

@@ -1,0 +1,84 @@
+"""The ``check`` command: extraction, stage recognition, charge-sharing
+analysis, reports and exit status."""
+
+from __future__ import annotations
+
+import sys
+
+from analyze.output import check_outputs, emit
+from analyze.report_json import dumps, header, stage_json
+from analyze.report_text import check_header, stage_block
+
+__all__ = ["analyse_circuit", "check_report", "check_cell"]
+
+
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
+    """Recognise the stages of ``circuit`` and analyse each one.
+
+    Returns
+    -------
+    recognition : analyze.recognize.Recognition
+    results : list of analyze.analysis.StageResult
+    """
+    from analyze.analysis import analyze_stage
+    from analyze.constraints import check_constraints_apply
+    from analyze.recognize import find_stages
+
+    recognition = find_stages(circuit, tech)
+    if constraints is not None:
+        check_constraints_apply(constraints, recognition.stages, constraints_path)
+    results = [analyze_stage(circuit, st, tech, constraints) for st in recognition.stages]
+    return recognition, results
+
+
+def check_report(circuit, tech, recognition, results) -> dict:
+    report = header(circuit.cell, tech.vdd)
+    from analyze.report_json import devices_json, nets_json
+
+    report["clock"] = {"nets": list(recognition.clocks), "inferred": recognition.clock_inferred,
+                       "note": recognition.clock_note}
+    report["nets"] = nets_json(circuit)
+    report["devices"] = devices_json(circuit)
+    report["stages"] = [stage_json(r, circuit) for r in results]
+    report["findings"] = [
+        {"message": f.message, "location_um": None if f.location_um is None else list(f.location_um)}
+        for f in list(circuit.findings) + list(recognition.findings)
+    ]
+    report["status"] = "fail" if any(r.status == "fail" for r in results) else "pass"
+    return report
+
+
+def check_cell(args) -> int:
+    from extract.pipeline import extract_layout
+    from extract.techfile import load_tech
+
+    inputs = [args.layout, args.tech, args.constraints]
+    check_outputs({"--json": args.json, "--html": getattr(args, "html", None)}, inputs)
+    tech = load_tech(args.tech)
+    constraints = None
+    if args.constraints:
+        from analyze.constraints import load_constraints
+
+        constraints = load_constraints(args.constraints)
+    circuit = extract_layout(args.layout, tech, args.cell)
+    recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
+    for f in list(circuit.findings) + list(recognition.findings):
+        sys.stderr.write(f"warning: {f.text()}\n")
+    report = check_report(circuit, tech, recognition, results)
+    text = check_header(circuit, tech, recognition)
+    for r in results:
+        text += "\n" + stage_block(r, circuit, tech)
+    failed = sum(r.status == "fail" for r in results)
+    if results:
+        text += f"\n{len(results) - failed} of {len(results)} stages pass\n"
+    html = None
+    if getattr(args, "html", None):
+        from analyze.html_report import check_html
+
+        html = check_html(circuit, tech, recognition, results)
+    if args.json != "-":
+        sys.stdout.write(text)
+    emit(args.json, dumps(report))
+    if html is not None:
+        emit(args.html, html)
+    return 1 if failed else 0

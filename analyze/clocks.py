@@ -224,7 +224,9 @@ def infer_clocks(topo: Topology, candidates: list[Candidate] | None = None) -> C
         candidates = find_candidates(topo)
     reasons = {n: "from tech file" for n in _declared(topo)}
     declared = set(reasons)
-    for c in candidates:
+    # Name a node that drives a gate (a dynamic node rather than an internal
+    # node with a secondary precharge device) in the reason when there is one.
+    for c in sorted(candidates, key=lambda c: (not topo.gates.get(c.node), c.node)):
         if c.footers and c.gate not in reasons:
             reasons[c.gate] = (
                 f"gates {c.side.precharge_word} {c.precharge[0]} and "

@@ -20,6 +20,7 @@ import tomllib
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings, strategies as st
 
 from extract.circuit import Circuit, Device, Net
 from extract.tech import MosParams, NetRoles, Tech
@@ -501,3 +502,36 @@ def test_footers_on_two_nets_kept_with_finding():
     (s,) = r.stages
     assert (s.footer, s.footer_node, s.internal_nodes) == ("MF1", "f1", ("f2",))
     assert len(r.findings) == 1 and "footers on several nets (f1, f2)" in r.findings[0].message
+
+_NETS = ["VDD", "VSS", "CLK", "X", "Y", "n1", "n2", "A", "B"]
+_ROW = st.tuples(st.sampled_from(["nmos", "pmos"]), *[st.sampled_from(_NETS)] * 3)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_ROW, min_size=1, max_size=12), st.booleans())
+def test_random_circuits_respect_the_stage_definition(rows, declared):
+    # Hand reasoning, the definition (W&H ch. 9): whatever the circuit,
+    # recognition never raises, and every stage it reports is made of a
+    # clock-gated precharge device from the supply to X, evaluation devices
+    # of the other type, a footer (if any) gated by a clock on the rail,
+    # and internal nodes that are neither X, nor a rail, nor the footer node.
+    tech = TECH if declared else NO_CLOCK
+    c = make_circuit([(f"M{k}", t, d, g, s, 1.0, 0.18) for k, (t, d, g, s) in enumerate(rows)], tech)
+    r = find_stages(c, tech)
+    assert [s.dynamic_node for s in r.stages] == sorted(s.dynamic_node for s in r.stages)
+    for s in r.stages:
+        ev, pull = ("nmos", "pmos") if s.polarity == "n" else ("pmos", "nmos")
+        for name in s.precharge:
+            d = c.device(name)
+            assert d.type == pull and d.gate in r.clocks and {d.drain, d.source} == {s.dynamic_node, s.supply}
+        assert s.clock in r.clocks
+        assert s.evaluation and all(c.device(n).type == ev for n in s.evaluation)
+        assert list(s.inputs) == sorted({c.device(n).gate for n in s.evaluation})
+        assert not set(s.inputs) & set(r.clocks)
+        assert list(s.internal_nodes) == sorted(s.internal_nodes)
+        assert not {s.dynamic_node, s.footer_node, "VDD", "VSS"} & set(s.internal_nodes)
+        if s.footer:
+            f = c.device(s.footer)
+            assert f.gate in r.clocks and {f.drain, f.source} == {s.footer_node, s.rail}
+        for k in s.keepers:
+            assert c.device(k).gate not in r.clocks

@@ -1,0 +1,209 @@
+"""Charge-sharing check of one dynamic stage: the public entry points.
+
+:func:`analyze_stage` finds the exact worst-case pattern, the receiver
+threshold, the margin, pass/fail and, for a failing stage, the nodes that
+need a precharge (predischarge) device.  :func:`evaluate_pattern` and
+:func:`iter_counted_patterns` look at single patterns.
+
+Physics (n-type; a p-type stage is the mirror image): the dynamic node
+starts at VDD, internal nodes at 0 V except those precharged; inputs are 0
+or VDD; the footer conducts.  A pattern counts when the evaluation network
+does not join the dynamic node to the rail.  ``v_final`` comes from charge
+conservation with SPICE junction depletion charge and the body-effect pass
+limit (:mod:`analyze.redistribution`), ``v_final_linear`` from zero-bias
+capacitances, the threshold from the square-law inverter formula
+(:mod:`analyze.threshold`).
+
+Constraints are an :class:`analyze.constraints.Constraints` (from
+:func:`analyze.constraints.load_constraints`) or None for none.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Iterator
+
+from analyze.constraints import Constraints, stage_blocks
+from analyze.flags import Flag, find_flags
+from analyze.patterns import bind_blocks, count_counted, iter_counted
+from analyze.sharing import SharingModel, WorstCase, build_model
+from analyze.stage import Stage
+from analyze.threshold import receiver_threshold
+from analyze.worstcase import worst_case
+from extract.circuit import Circuit
+from extract.tech import Tech
+
+__all__ = [
+    "WorstCase",
+    "Flag",
+    "StageResult",
+    "analyze_stage",
+    "evaluate_pattern",
+    "iter_counted_patterns",
+]
+
+
+@dataclass
+class StageResult:
+    """The check of one stage.
+
+    Attributes
+    ----------
+    stage : Stage
+    threshold_v : float
+        Receiver switching threshold, V.
+    margin_v : float
+        ``v_final − threshold_v`` (n-type) or ``threshold_v − v_final``
+        (p-type), V.
+    status : str
+        ``"fail"`` when ``margin_v < tech.guard``, else ``"pass"``.
+    worst_case : WorstCase or None
+        None when no allowed pattern counts; the margin is then taken with
+        the dynamic node at its starting level (VDD, or 0 V for p-type).
+    flags : list of Flag
+    flag_note : str or None
+    counted_patterns : int
+        Number of counted patterns the constraints allow.
+    """
+
+    stage: Stage
+    threshold_v: float
+    margin_v: float
+    status: str
+    worst_case: WorstCase | None
+    flags: list[Flag] = field(default_factory=list)
+    flag_note: str | None = None
+    counted_patterns: int = 0
+
+
+def _prepared(circuit, stage, tech, constraints, precharged):
+    model = build_model(circuit, stage, tech, precharged)
+    return model, bind_blocks(model, stage_blocks(constraints, model.inputs))
+
+
+def analyze_stage(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    *,
+    precharged=frozenset(),
+) -> StageResult:
+    """Check ``stage`` for charge sharing.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    stage : Stage
+    tech : Tech
+    constraints : Constraints or None
+    precharged : iterable of str
+        Internal nodes to treat as precharged (predischarged) in addition
+        to the stage's own secondary precharge.
+
+    Returns
+    -------
+    StageResult
+
+    Notes
+    -----
+    Worst case by :func:`analyze.worstcase.worst_case`, count by
+    :func:`analyze.patterns.count_counted`, flags by
+    :func:`analyze.flags.find_flags` (failing stages only).
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, precharged)
+    threshold = receiver_threshold(circuit, stage, tech)
+    found = worst_case(model, choices)
+    wc = None if found is None else model.outcome(found.values, found.component)
+    v = model.to_volts(model.vdd) if wc is None else wc.v_final
+    n_type = stage.polarity == "n"
+    margin = v - threshold if n_type else threshold - v
+    status = "fail" if margin < tech.guard else "pass"
+    flags, note = [], None
+    if status == "fail":
+        need = threshold + tech.guard if n_type else tech.vdd - threshold + tech.guard
+        flags, note = find_flags(circuit, model, choices, need)
+    return StageResult(
+        stage=stage,
+        threshold_v=threshold,
+        margin_v=margin,
+        status=status,
+        worst_case=wc,
+        flags=flags,
+        flag_note=note,
+        counted_patterns=count_counted(model, choices),
+    )
+
+
+def _values(model: SharingModel, inputs: dict[str, int]) -> tuple[int, ...]:
+    missing = [n for n in model.inputs if n not in inputs]
+    if missing:
+        raise ValueError(f"no value for input {missing[0]!r}")
+    bad = [n for n in model.inputs if inputs[n] not in (0, 1)]
+    if bad:
+        raise ValueError(f"input {bad[0]!r} must be 0 or 1")
+    return tuple(int(inputs[n]) for n in model.inputs)
+
+
+def evaluate_pattern(
+    circuit: Circuit, stage: Stage, tech: Tech, inputs: dict[str, int], *, precharged=frozenset()
+) -> WorstCase | None:
+    """What one input pattern does to the dynamic node.
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    inputs : dict of str to int
+        A value (0 or 1) for every stage input; other keys are ignored.
+    precharged : iterable of str
+
+    Returns
+    -------
+    WorstCase or None
+        None when the pattern joins the dynamic node to the rail.
+
+    Raises
+    ------
+    ValueError
+        When an input has no value or a value other than 0 or 1.
+    """
+    model = build_model(circuit, stage, tech, precharged)
+    values = _values(model, inputs)
+    comp, tied = model.component(model.conducting(values))
+    return None if tied else model.outcome(values, comp)
+
+
+def iter_counted_patterns(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    limit: int | None = None,
+) -> Iterator[WorstCase]:
+    """Every counted pattern the constraints allow, with its result.
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    constraints : Constraints or None
+    limit : int or None
+        Stop after this many.
+
+    Yields
+    ------
+    WorstCase
+
+    Notes
+    -----
+    Order of :func:`analyze.patterns.iter_counted` (constraint blocks by
+    first input, options lexicographic, last block fastest).  Patterns are
+    evaluated in vectorised chunks and final voltages cached per set of
+    shared nodes.
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
+    if limit is not None and limit <= 0:
+        return
+    for k, (values, comp) in enumerate(iter_counted(model, choices), start=1):
+        yield model.outcome(values, comp)
+        if limit is not None and k >= limit:
+            return

@@ -1,0 +1,117 @@
+"""Hand-built circuits and stages for the charge-sharing tests.
+
+The numbers are those of the invented dsk18 demo process (1.8 V); none
+describes a real process.  :func:`domino` builds a whole dynamic gate
+(precharge, evaluation network, optional footer, keeper, receiver
+inverter, secondary precharge devices) as a :class:`Circuit` with the
+matching :class:`Stage`, so tests need not run stage recognition.
+"""
+
+from __future__ import annotations
+
+from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
+from extract.tech import MosParams, NetRoles, Tech
+from analyze.stage import Receiver, Stage
+
+__all__ = ["NMOS", "PMOS", "make_tech", "make_net", "domino"]
+
+NMOS = dict(vt0=0.45, gamma=0.45, phi=0.85, kp=280.0, cox=8.5, cgo=0.25, cj=0.95, cjsw=0.22,
+            cjswg=0.22, mj=0.40, mjsw=0.30, pb=0.80, pbsw=0.80)
+PMOS = dict(vt0=-0.48, gamma=0.40, phi=0.80, kp=65.0, cox=8.5, cgo=0.25, cj=1.10, cjsw=0.28,
+            cjswg=0.28, mj=0.45, mjsw=0.32, pb=0.85, pbsw=0.85)
+
+
+def make_tech(vdd: float = 1.8, guard: float = 0.05, nmos: dict | None = None,
+              pmos: dict | None = None) -> Tech:
+    """A dsk18-like Tech; ``nmos``/``pmos`` override single parameters.
+
+    With the defaults ``cjswg = cjsw`` and ``pbsw = pb``, as the SPICE
+    level-1 model needs for a like-for-like ngspice reference.
+    """
+    n = MosParams("nmos", **{**NMOS, **(nmos or {})})
+    p = MosParams("pmos", **{**PMOS, **(pmos or {})})
+    return Tech("dsk18", vdd, NetRoles(("VDD",), ("VSS",), ("CLK",)), {}, {"nmos": n, "pmos": p},
+                guard=guard)
+
+
+def make_net(name: str, tech: Tech, linear: float = 0.0, nmos=None, pmos=None,
+             role: str = "signal", location=None) -> Net:
+    """A net with ``linear`` fF of wire capacitance and junctions given as
+    ``(area µm², field perimeter µm, gate perimeter µm)`` per type; the
+    CapParts are computed from the tech (cj·A, cjsw·P_field, cjswg·P_gate)."""
+    junctions, cap = {}, CapParts(wire=linear)
+    for t, geo in (("nmos", nmos), ("pmos", pmos)):
+        if geo is None:
+            continue
+        g = JunctionGeometry(*geo)
+        junctions[t] = g
+        p = tech.mos[t]
+        cap = cap + CapParts(junction_area=p.cj * g.area_um2,
+                             junction_sidewall=p.cjsw * g.field_perimeter_um,
+                             junction_gate_edge=p.cjswg * g.gate_perimeter_um)
+    return Net(name, role=role, cap=cap, junctions=junctions, location_um=location,
+               labels=(name,), labelled=True)
+
+
+def domino(tech: Tech, evaluation, caps: dict, *, polarity: str = "n", footed: bool = True,
+           secondary=(), keeper: bool = True, receivers=((1.0, 0.18, 2.0, 0.18),),
+           wl=(1.0, 0.18)):
+    """A dynamic gate and its Stage.
+
+    Parameters
+    ----------
+    evaluation : list of (name, a, gate, b)
+        Evaluation devices; terminals name nets, ``"X"`` is the dynamic
+        node, ``"FOOT"`` the footer node (or write the rail, ``"VSS"`` for
+        n-type, ``"VDD"`` for p-type, for a footless stage).
+    caps : dict of net -> dict
+        Keyword arguments of :func:`make_net` (``linear``, ``nmos``, ``pmos``)
+        for each net that has capacitance.
+    polarity : "n" or "p"
+    secondary : iterable of str
+        Internal nodes with a clocked precharge (predischarge) device.
+    receivers : tuple of (Wn, Ln, Wp, Lp)
+        One inverter per entry, reading X.
+    """
+    n_type = polarity == "n"
+    ev_type, pre_type = ("nmos", "pmos") if n_type else ("pmos", "nmos")
+    supply, rail = ("VDD", "VSS") if n_type else ("VSS", "VDD")
+    w, l = wl
+    devs = [Device("MPRE", pre_type, "X", "CLK", supply, 1.0, 0.18)]
+    for name, a, g, b in evaluation:
+        devs.append(Device(name, ev_type, a, g, b, w, l))
+    if footed:
+        devs.append(Device("MFOOT", ev_type, "FOOT", "CLK", rail, 2.0, 0.18))
+    keepers = ()
+    if keeper:
+        devs.append(Device("MKEEP", pre_type, "X", "OUT0", supply, 0.3, 0.5))
+        keepers = ("MKEEP",)
+    recs = []
+    for k, (wn, ln, wp, lp) in enumerate(receivers):
+        out = f"OUT{k}"
+        devs.append(Device(f"MRN{k}", "nmos", out, "X", "VSS", wn, ln))
+        devs.append(Device(f"MRP{k}", "pmos", out, "X", "VDD", wp, lp))
+        recs.append(Receiver(f"MRN{k}", f"MRP{k}", out))
+    sec = {}
+    for k, node in enumerate(sorted(secondary)):
+        devs.append(Device(f"MSEC{k}", pre_type, node, "CLK", supply, 0.5, 0.18))
+        sec[node] = f"MSEC{k}"
+    names = {t for d in devs for t in (d.drain, d.gate, d.source)}
+    if keeper and "OUT0" not in names:
+        names.add("OUT0")
+    nets = {}
+    for i, n in enumerate(sorted(names)):
+        role = tech.role_of(n)
+        nets[n] = make_net(n, tech, role=role, location=(float(i), 0.5), **caps.get(n, {}))
+    ev_names = tuple(e[0] for e in evaluation)
+    fixed = {"X", "FOOT", rail}
+    internal = sorted({t for _, a, _, b in evaluation for t in (a, b)} - fixed)
+    stage = Stage(
+        dynamic_node="X", polarity=polarity, clock="CLK", supply=supply, rail=rail,
+        precharge=("MPRE",), evaluation=ev_names, footer="MFOOT" if footed else None,
+        footer_node="FOOT" if footed else None,
+        inputs=tuple(sorted({e[2] for e in evaluation})), internal_nodes=tuple(internal),
+        keepers=keepers, receivers=tuple(recs), secondary_precharge=sec, location_um=(0.0, 0.5),
+    )
+    circuit = Circuit("test", dict(sorted(nets.items())), sorted(devs, key=lambda d: d.name))
+    return circuit, stage

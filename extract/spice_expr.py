@@ -14,10 +14,14 @@ Numbers
     one milli, ``1F`` one femto).
 
 Expressions
-    ``+ - * /``, ``**`` or ``^`` (power, right-associative, binding tighter
-    than unary minus: ``-2**2`` is -4), parentheses, unary ``+``/``-``,
+    ``+ - * /``, ``**`` or ``^`` (power), parentheses, unary ``+``/``-``,
     numbers as above, parameter names (case-insensitive) and the functions
-    ``sqrt abs min max exp log pow``.
+    ``sqrt abs exp log`` (natural) of one argument and ``min max pow`` of
+    two (ngspice's ``min``/``max`` take exactly two; more is refused here
+    rather than read differently from the simulator).  Precedence and associativity are
+    those of ngspice (checked against ngspice 39 in the tests): power
+    binds tighter than unary minus (``-3^2`` is -9) and groups from the
+    left (``2^2^3`` is 64); its right operand may carry a sign (``2**-1``).
 
 Notes
 -----
@@ -168,16 +172,17 @@ _FUNCTIONS = {
     "exp": (_exp, 1, 1),
     "log": (_log, 1, 1),
     "pow": (_pow, 2, 2),
-    "min": (min, 1, None),
-    "max": (max, 1, None),
+    "min": (min, 2, 2),
+    "max": (max, 2, 2),
 }
 
 
 class _Parser:
     """Recursive descent: expr := term (('+'|'-') term)*;
     term := unary (('*'|'/') unary)*; unary := ('+'|'-') unary | power;
-    power := atom ('**' unary)?; atom := number | name | name '(' args ')'
-    | '(' expr ')'."""
+    power := atom ('**' signed)*  (left to right, as ngspice);
+    signed := ('+'|'-') signed | atom;
+    atom := number | name | name '(' args ')' | '(' expr ')'."""
 
     def __init__(self, text: str, params: dict[str, float]):
         self.text = text
@@ -233,11 +238,18 @@ class _Parser:
         return self.power()
 
     def power(self) -> float:
-        base = self.atom()
-        if self.peek() == ("op", "**"):
+        value = self.atom()
+        while self.peek() == ("op", "**"):
             self.take()
-            return _pow(base, self.unary())
-        return base
+            value = _pow(value, self.signed())
+        return value
+
+    def signed(self) -> float:
+        if self.peek() in (("op", "+"), ("op", "-")):
+            op = self.take()[1]
+            value = self.signed()
+            return -value if op == "-" else value
+        return self.atom()
 
     def atom(self) -> float:
         kind, val = self.take()
@@ -299,8 +311,8 @@ def evaluate(text: str, params: dict[str, float] | None = None) -> float:
     --------
     >>> evaluate("2*(wn + 0.1u)", {"wn": 0.4e-6}) == 2 * (0.4e-6 + 0.1e-6)
     True
-    >>> evaluate("-2^2"), evaluate("2**3**2"), evaluate("max(1, sqrt(16), abs(-3))")
-    (-4.0, 512.0, 4.0)
+    >>> evaluate("-2^2"), evaluate("2**3**2"), evaluate("max(1, max(sqrt(16), abs(-3)))")
+    (-4.0, 64.0, 4.0)
     >>> evaluate("w/0", {"w": 1.0})
     Traceback (most recent call last):
     ...

@@ -13,7 +13,7 @@ from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import MosParams, NetRoles, Tech
 from analyze.stage import Receiver, Stage
 
-__all__ = ["NMOS", "PMOS", "make_tech", "make_net", "domino"]
+__all__ = ["NMOS", "PMOS", "make_tech", "make_net", "domino", "mux"]
 
 NMOS = dict(vt0=0.45, gamma=0.45, phi=0.85, kp=280.0, cox=8.5, cgo=0.25, cj=0.95, cjsw=0.22,
             cjswg=0.22, mj=0.40, mjsw=0.30, pb=0.80, pbsw=0.80)
@@ -115,3 +115,19 @@ def domino(tech: Tech, evaluation, caps: dict, *, polarity: str = "n", footed: b
     )
     circuit = Circuit("test", dict(sorted(nets.items())), sorted(devs, key=lambda d: d.name))
     return circuit, stage
+
+
+def mux(tech: Tech, legs: int, x_linear: float = 6.0):
+    """A footed domino OR-mux: legs X – S_i – m_i – D_i – FOOT.
+
+    Mid-node capacitances vary from leg to leg (wire 0.2–0.7 fF plus a
+    junction); returns ``(circuit, stage)``.
+    """
+    ev = []
+    caps = {"X": dict(linear=x_linear, nmos=(0.5 * legs, 1.5 * legs, 1.0 * legs),
+                      pmos=(0.6, 2.0, 1.0))}
+    for i in range(legs):
+        ev.append((f"MS{i:02d}", "X", f"S{i:02d}", f"m{i:02d}"))
+        ev.append((f"MD{i:02d}", f"m{i:02d}", f"D{i:02d}", "FOOT"))
+        caps[f"m{i:02d}"] = dict(linear=0.2 + 0.05 * ((7 * i) % 11), nmos=(0.5, 1.5, 2.0))
+    return domino(tech, ev, caps)

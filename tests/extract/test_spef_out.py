@@ -7,10 +7,13 @@ from __future__ import annotations
 import re
 
 import pytest
-from writer_fixtures import domino_circuit, level1_tech, parse_spef
+from drawing import TECH
+from writer_fixtures import SAMPLE_CELLS, SAMPLES, domino_circuit, level1_tech, parse_spef
 
 from extract.circuit import CapParts, Circuit, Device, Net
+from extract.pipeline import extract_layout
 from extract.spef_out import SPEF_DATE, write_spef
+from extract.techfile import load_tech
 
 # IEEE 1481 identifier (from memory): letters, digits, _ and backslash-escaped
 # special characters.
@@ -110,3 +113,28 @@ def test_output_is_deterministic():
     b.devices = list(reversed(b.devices))
     tech = level1_tech()
     assert write_spef(a, tech) == write_spef(a, tech) == write_spef(b, tech)
+
+
+
+@pytest.mark.parametrize("cell", SAMPLE_CELLS)
+def test_sample_cells(cell):
+    """Each bundled sample cell: one D_NET per net whose total is the
+    extracted cap_ff and whose *CAP entries add up to it, three pins per
+    device, ports = labelled nets, and the same bytes twice."""
+    tech = load_tech(TECH)
+    circuit = extract_layout(SAMPLES, tech, cell)
+    text = write_spef(circuit, tech)
+    assert text == write_spef(extract_layout(SAMPLES, tech, cell), tech)
+    spef = parse_spef(text)
+    ref = {unescape(v): k for k, v in spef["names"].items()}
+    assert set(ref) == set(circuit.nets)
+    for name, net in circuit.nets.items():
+        d_net = spef["nets"][ref[name]]
+        assert d_net["total"] == pytest.approx(net.cap_ff, rel=1e-5, abs=1e-9)
+        assert sum(c for _, _, c in d_net["caps"]) == pytest.approx(d_net["total"], rel=1e-12)
+        pins = [c for c in d_net["conn"] if c[0] == "*I"]
+        expected = sum((d.drain == name) + (d.gate == name) + (d.source == name)
+                       for d in circuit.devices)
+        assert len(pins) == expected, name
+    ports = {unescape(spef["names"][r]) for r, _ in spef["ports"]}
+    assert ports == {n for n, net in circuit.nets.items() if net.labelled}

@@ -9,12 +9,17 @@ round trip checks the text a simulator or a timing tool would read.
 
 from __future__ import annotations
 
+import os
 import re
+
+import gdstk
 
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import MosParams, NetRoles, Tech
 
 __all__ = [
+    "SAMPLES",
+    "SAMPLE_CELLS",
     "level1_tech",
     "domino_circuit",
     "AC_EXPECTED_FF",
@@ -22,7 +27,13 @@ __all__ = [
     "parse_spef",
     "spice_value",
     "ac_deck",
+    "op_deck",
+    "model_cards",
 ]
+
+#: The bundled sample layouts (sample_layouts/make_samples.py) and their top cells.
+SAMPLES = os.path.join(os.path.dirname(__file__), "..", "..", "sample_layouts", "dsk18_cells.gds")
+SAMPLE_CELLS = sorted(c.name for c in gdstk.read_gds(SAMPLES).top_level())
 
 # ---------------------------------------------------------------- tech ----
 
@@ -243,16 +254,10 @@ def model_cards(tech: Tech) -> list[str]:
     return [_model_card(p.models[0] if p.models else t, p) for t, p in sorted(tech.mos.items())]
 
 
-def ac_deck(netlist: str, tech: Tech, measure: list[str], freq_hz: float = 1e6) -> str:
-    """A deck that holds every node of the written subcircuit at 0 V DC
-    (supplies included, so every junction is at zero bias) and, for each
-    node in ``measure`` (written names), drives that node alone with a
-    1 V AC source and prints ``c_<i>`` = Im(I) / (2 pi f V) in farads.
-
-    Ports are reached through the instance; internal nodes through their
-    flattened names ``x1.<node>``.  Prints ``c_<i>`` in ``measure`` order.
-    """
-    parsed = parse_spice(netlist)
+def _nodes(parsed: dict) -> dict[str, str]:
+    """Written net name -> the deck's node for it: ports through the
+    instance's top-level nodes ``t_<port>``, internal nets by their
+    flattened names ``x1.<net>``."""
     ports = parsed["ports"]
     internal = set()
     for dev in parsed["devices"].values():
@@ -260,9 +265,24 @@ def ac_deck(netlist: str, tech: Tech, measure: list[str], freq_hz: float = 1e6) 
     for a, b, _ in parsed["caps"].values():
         internal.update((a, b))
     internal -= set(ports)
-    node = {p: f"t_{p}" for p in ports} | {n: f"x1.{n}" for n in sorted(internal)}
+    return {p: f"t_{p}" for p in ports} | {n: f"x1.{n}" for n in sorted(internal)}
+
+
+def _instance(parsed: dict, node: dict[str, str]) -> str:
+    return "X1 " + " ".join(node[p] for p in parsed["ports"]) + f" {parsed['subckt']}"
+
+
+def ac_deck(netlist: str, tech: Tech, measure: list[str], freq_hz: float = 1e6) -> str:
+    """A deck that holds every node of the written subcircuit at 0 V DC
+    (supplies included, so every junction is at zero bias) and, for each
+    node in ``measure`` (written names), drives that node alone with a
+    1 V AC source and prints ``c_<i>`` = Im(I) / (2 pi f V) in farads,
+    in ``measure`` order.
+    """
+    parsed = parse_spice(netlist)
+    node = _nodes(parsed)
     lines = ["* zero-bias AC capacitance measurement", netlist, *model_cards(tech)]
-    lines.append("X1 " + " ".join(node[p] for p in ports) + f" {parsed['subckt']}")
+    lines.append(_instance(parsed, node))
     src = {}
     for i, name in enumerate(sorted(node)):
         src[name] = f"vs{i}"
@@ -279,3 +299,25 @@ def ac_deck(netlist: str, tech: Tech, measure: list[str], freq_hz: float = 1e6) 
         ]
     lines += [".endc", ".end", ""]
     return "\n".join(lines)
+
+
+def op_deck(netlist: str, tech: Tech, drive: dict[str, float]) -> tuple[str, list[str]]:
+    """A deck that drives the ports in ``drive`` (written names, volts),
+    runs ``op`` and prints ``v_<i>`` for every node of the subcircuit.
+
+    Every node gets a 1e12 ohm shunt (ngspice ``.option rshunt``): a
+    wire-only net or an undriven gate has no DC path otherwise, which any
+    simulator needs.  Returns the deck and the written names in ``v_<i>``
+    order.
+    """
+    parsed = parse_spice(netlist)
+    node = _nodes(parsed)
+    names = sorted(node)
+    lines = ["* operating point of the written netlist", netlist, *model_cards(tech),
+             ".option rshunt=1e12", _instance(parsed, node)]
+    lines += [f"vd{i} {node[n]} 0 dc {drive[n]}" for i, n in enumerate(names) if n in drive]
+    lines += [".control", "op"]
+    for i, n in enumerate(names):
+        lines += [f"let v_{i} = v({node[n]})", f"print v_{i}"]
+    lines += [".endc", ".end", ""]
+    return "\n".join(lines), names

@@ -66,10 +66,10 @@ def dyn_nand2_diag() -> gdstk.Cell:
     (1.0, 1.5) → (2.03, 1.5) → (3.23, 2.7) → (4.26, 2.7) with mitred
     corners: the vertices of a 45° mitre sit 0.5·tan(22.5°) ≈ 0.2071 µm
     either side of the corner along the straight edges.  The footer (CLK)
-    and A are vertical gates on the horizontal parts; B is a 0.18 µm poly
-    bar perpendicular to the 45° part, centred on its midpoint, so its
-    channel is 1.0 × 0.18 µm.  Coordinates off the 0.01 µm grid are
-    rounded to the 1 nm database unit.
+    and A are vertical gates on the horizontal parts; B is a poly bar
+    perpendicular to the 45° part at its midpoint, with its corners on the
+    1 nm grid: L = 0.127·√2 ≈ 0.1796 µm, W ≈ 1.0 µm.  The mitre vertices
+    are rounded to the 1 nm database unit.
 
     Examples
     --------
@@ -96,18 +96,21 @@ def dyn_nand2_diag() -> gdstk.Cell:
             (x0, yl + h),
         ],
     )
-    # gate B: a 0.18 µm bar across the 45° part, 0.2 µm beyond the active on
-    # the upper-left side and 0.5 µm on the lower-right (room for its label)
+    # gate B: a bar across the 45° part, perpendicular to it, 0.2 µm beyond
+    # the active on the upper-left side and 0.5 µm on the lower-right (room
+    # for its label).  Its length vector is (0.127, 0.127) so that every
+    # corner is on the 1 nm grid: L = 0.127·√2 ≈ 0.1796 µm.
     s2 = math.sqrt(0.5)
-    cx, cy = c1x + rise / 2, yl + rise / 2
-    d, n = (s2, s2), (-s2, s2)
+    p0 = (c1x + rise / 2 - 0.064, yl + rise / 2 - 0.063)
+    lv = (0.127, 0.127)
+    lo = (snap((h + 0.5) * s2), -snap((h + 0.5) * s2))
+    hi = (-snap((h + EXT) * s2), snap((h + EXT) * s2))
 
-    def at(u: float, v: float) -> tuple[float, float]:
-        return (cx + u * d[0] + v * n[0], cy + u * d[1] + v * n[1])
+    def at(*vs):
+        return (p0[0] + sum(v[0] for v in vs), p0[1] + sum(v[1] for v in vs))
 
-    lo, hi = -(h + 0.5), h + EXT
-    sk.polygon("poly", [at(-0.09, lo), at(0.09, lo), at(0.09, hi), at(-0.09, hi)])
-    sk.label("poly", "B", *at(0.0, lo + 0.15))
+    sk.polygon("poly", [at(lo), at(lv, lo), at(lv, hi), at(hi)])
+    sk.label("poly", "B", *at((0.064, 0.063), (0.6, -0.6)))
     # gate A (vertical, upper band) and the contacted ends
     a = (snap(c2x + 0.37), snap(c2x + 0.55))
     gate(sk, a, yu - h - EXT, yu + h + EXT)

@@ -23,28 +23,28 @@ Rules
 
 Notes
 -----
-Colour refinement (1-dimensional Weisfeiler–Leman) over both graphs at
-once gives every node a structural colour, O(iterations · edges); nodes
-may only be paired with nodes of the same colour, which leaves the VF2
-search of :mod:`networkx` (Cordella et al., 2004) almost nothing to
-try on real cells.  If the colour histograms differ the graphs cannot be
-isomorphic and VF2 is skipped.  A failed match is explained by
+The isomorphism is found by colour refinement and individualisation
+(:mod:`analyze.refine`): each refinement round costs a few numpy passes
+over the edges, and on real cells (ports break almost every symmetry)
+one refinement settles everything; identical legs of a gate take one
+individualisation per leg.  A search respecting W/L comes first; when
+it fails, a search on structure alone tells a size mismatch from a
+connection mismatch.  The reason of a failed match is worked out by
 :mod:`analyze.match_report`.
 """
 
 from __future__ import annotations
 
-from collections import Counter, defaultdict
+from collections import defaultdict
 from dataclasses import dataclass, field
 
 import networkx as nx
-import numpy as np
-from networkx.algorithms.isomorphism import GraphMatcher
 
+from analyze.refine import Refiner, SearchBudgetExceeded
 from extract.circuit import Circuit
 from extract.errors import InputError
 
-__all__ = ["Match", "DeviceGroup", "Side", "match_circuits", "merge_parallel", "refine_colours"]
+__all__ = ["Match", "DeviceGroup", "Side", "match_circuits", "merge_parallel"]
 
 
 @dataclass
@@ -169,108 +169,6 @@ def _graph(groups: list[DeviceGroup], seeds: dict[str, str]) -> nx.Graph:
     return g
 
 
-_U64 = np.uint64
-
-
-def _mix(x: np.ndarray) -> np.ndarray:
-    """splitmix64 (Steele, Lea & Flood, 2014): a well-spread 64-bit hash."""
-    x = x + _U64(0x9E3779B97F4A7C15)
-    x = (x ^ (x >> _U64(30))) * _U64(0xBF58476D1CE4E5B9)
-    x = (x ^ (x >> _U64(27))) * _U64(0x94D049BB133111EB)
-    return x ^ (x >> _U64(31))
-
-
-def refine_colours(graphs: list[nx.Graph], max_rounds: int | None = None) -> list[list[dict]]:
-    """Colour refinement of several graphs with one shared palette.
-
-    Parameters
-    ----------
-    graphs : list of networkx.Graph
-        Node attribute ``label`` (hashable) is the starting colour; edge
-        attribute ``kind`` is part of each neighbour's contribution.
-    max_rounds : int, optional
-        Default: until the partition stops getting finer.
-
-    Returns
-    -------
-    list of list of dict
-        ``history[r][k]``: node -> colour (int) of graph k after round r
-        (round 0 is the starting colours; the last round is stable).
-        Equal colours in two graphs mean equal neighbourhoods up to that
-        depth.
-
-    Notes
-    -----
-    The graphs are refined as one disjoint union, so colours compare
-    across them.  A node's new colour is its old colour plus the multiset
-    of (edge kind, neighbour colour), the multiset taken as a sum of
-    64-bit hashes; a collision could only merge two colours (weaker
-    pruning, never a wrong answer: every mapping is verified).  Each round
-    is a few numpy passes over the edges.
-
-    Examples
-    --------
-    >>> a, b = nx.path_graph(3), nx.path_graph(3)
-    >>> for g in (a, b):
-    ...     nx.set_node_attributes(g, "x", "label"); nx.set_edge_attributes(g, 0, "kind")
-    >>> h = refine_colours([a, b])
-    >>> h[-1][0] == h[-1][1], h[-1][0][0] == h[-1][0][2], h[-1][0][0] == h[-1][0][1]
-    (True, True, False)
-    """
-    nodes = [list(g) for g in graphs]
-    offset = np.cumsum([0] + [len(n) for n in nodes])
-    index = [{n: int(offset[k]) + i for i, n in enumerate(ns)} for k, ns in enumerate(nodes)]
-    labels: dict = {}
-    col = np.array([labels.setdefault(g.nodes[n]["label"], len(labels)) for g, ns in zip(graphs, nodes)
-                    for n in ns], dtype=np.int64)
-    kinds: dict = {}
-    u, v, kind = [], [], []
-    for g, idx in zip(graphs, index):
-        for a, b, k in g.edges(data="kind"):
-            kid = kinds.setdefault(k, len(kinds))
-            u += [idx[a], idx[b]]
-            v += [idx[b], idx[a]]
-            kind += [kid, kid]
-    u, v, kind = np.array(u, dtype=np.int64), np.array(v, dtype=np.int64), np.array(kind, dtype=np.uint64)
-
-    def split(c: np.ndarray) -> list[dict]:
-        return [dict(zip(ns, c[offset[k]:offset[k + 1]].tolist())) for k, ns in enumerate(nodes)]
-
-    history = [split(col)]
-    count = len(labels)
-    rounds = max_rounds if max_rounds is not None else len(col) + 1
-    for _ in range(rounds):
-        acc = np.zeros(len(col), dtype=np.uint64)
-        if len(u):
-            np.add.at(acc, u, _mix(kind * _U64(len(col) + 1) + col[v].astype(np.uint64)))
-        pairs = np.stack([col, acc.view(np.int64)], axis=1)
-        _, new = np.unique(pairs, axis=0, return_inverse=True)
-        new = new.reshape(-1).astype(np.int64)
-        new_count = int(new.max()) + 1 if len(new) else 0
-        if new_count == count:
-            break
-        col, count = new, new_count
-        history.append(split(col))
-    return history
-
-
-def _forced(g_l: nx.Graph, g_s: nx.Graph, col_l: dict, col_s: dict) -> dict | None:
-    """The mapping when every colour class has one node on each side (or
-    None when the partition is not discrete); None too when an edge does
-    not carry over."""
-    by_colour = {c: n for n, c in col_s.items()}
-    if len(by_colour) != len(col_s) or len(set(col_l.values())) != len(col_l):
-        return None
-    mapping = {n: by_colour[c] for n, c in col_l.items()}
-    if g_l.number_of_edges() != g_s.number_of_edges():
-        return None
-    for a, b, k in g_l.edges(data="kind"):
-        sa, sb = mapping[a], mapping[b]
-        if not g_s.has_edge(sa, sb) or g_s.edges[sa, sb]["kind"] != k:
-            return None
-    return mapping
-
-
 def _seeds(schematic: Circuit, layout: Circuit, used_s: set[str], used_l: set[str], file: str):
     ports = {}
     for net in schematic.nets.values():
@@ -299,10 +197,6 @@ def _seeds(schematic: Circuit, layout: Circuit, used_s: set[str], used_l: set[st
 
 def _used(groups: list[DeviceGroup]) -> set[str]:
     return {n for g in groups for n in (g.gate, *g.ends)}
-
-
-def _close(a: float, b: float, tol: float) -> bool:
-    return abs(a - b) <= tol * abs(b) + 1e-9
 
 
 def match_circuits(schematic: Circuit, layout: Circuit, *, w_tol: float = 0.02, l_tol: float = 0.02) -> Match:
@@ -348,48 +242,20 @@ def match_circuits(schematic: Circuit, layout: Circuit, *, w_tol: float = 0.02, 
     seeds_s, seeds_l, notes = _seeds(schematic, layout, _used(groups_s), _used(groups_l), file)
     side_s = Side(schematic, groups_s, _graph(groups_s, seeds_s), seeds_s)
     side_l = Side(layout, groups_l, _graph(groups_l, seeds_l), seeds_l)
-    history = refine_colours([side_l.graph, side_s.graph])
-    col_l, col_s = history[-1]
-    if Counter(col_l.values()) == Counter(col_s.values()):
-        mapping = _forced(side_l.graph, side_s.graph, col_l, col_s)
-        if mapping is None:
-            mapping = _search(side_l.graph, side_s.graph, col_l, col_s, w_tol, l_tol)
+    ref = Refiner([side_l.graph, side_s.graph])
+    try:
+        mapping = ref.isomorphism(sized=True, w_tol=w_tol, l_tol=l_tol)
         if mapping is not None:
-            if _sizes_agree(side_l.graph, side_s.graph, mapping, w_tol, l_tol):
-                return _result(side_s, side_l, mapping, notes)
-            raise InputError(file, explain(side_s, side_l, history, mapping, w_tol, l_tol))
-    raise InputError(file, explain(side_s, side_l, history, None, w_tol, l_tol))
-
-
-def _sizes_agree(g_l: nx.Graph, g_s: nx.Graph, mapping: dict, w_tol: float, l_tol: float) -> bool:
-    for a, b in mapping.items():
-        da, db = g_l.nodes[a], g_s.nodes[b]
-        if "w" in da and not (_close(da["w"], db["w"], w_tol) and _close(da["l"], db["l"], l_tol)):
-            return False
-    return True
-
-
-def _search(g_l: nx.Graph, g_s: nx.Graph, col_l: dict, col_s: dict, w_tol: float, l_tol: float):
-    """VF2 among nodes of equal colour: first with sizes in tolerance, then
-    on structure alone (so that a size mismatch can be reported)."""
-    nx.set_node_attributes(g_l, col_l, "colour")
-    nx.set_node_attributes(g_s, col_s, "colour")
-
-    def sized(a, b):
-        return a["colour"] == b["colour"] and ("w" not in a or (
-            _close(a["w"], b["w"], w_tol) and _close(a["l"], b["l"], l_tol)))
-
-    def structural(a, b):
-        return a["colour"] == b["colour"]
-
-    def edges(a, b):
-        return a["kind"] == b["kind"]
-
-    for node_match in (sized, structural):
-        gm = GraphMatcher(g_l, g_s, node_match=node_match, edge_match=edges)
-        if gm.is_isomorphic():
-            return dict(gm.mapping)
-    return None
+            return _result(side_s, side_l, mapping, notes)
+    except SearchBudgetExceeded:
+        pass
+    try:
+        mapping = ref.isomorphism()
+    except SearchBudgetExceeded:
+        raise InputError(file, "schematic and layout could not be matched: the circuit is too "
+                               "symmetric for the search (no port or size tells its parts apart)") from None
+    history = [ref.split(c) for c in ref.rounds()]
+    raise InputError(file, explain(side_s, side_l, history, mapping, w_tol, l_tol))
 
 
 def _result(side_s: Side, side_l: Side, mapping: dict, notes: list[str]) -> Match:

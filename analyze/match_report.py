@@ -234,7 +234,8 @@ def explain(side_s: Side, side_l: Side, history, mapping: dict | None, w_tol: fl
     side_s, side_l : Side
         Schematic and layout, prepared by :func:`analyze.match.match_circuits`.
     history : list
-        Colour refinement history, layout first (:func:`analyze.match.refine_colours`).
+        Colour refinement rounds, each ``[layout colours, schematic colours]``
+        (:meth:`analyze.refine.Refiner.rounds`).
     mapping : dict or None
         A structural isomorphism layout -> schematic when one exists (then
         only sizes differ).

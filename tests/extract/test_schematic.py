@@ -552,3 +552,42 @@ def test_junction_and_wire_capacitance_agree_with_ngspice():
     assert c.nets["n1"].cap.junction + c.nets["n1"].cap.wire == pytest.approx(
         3 * (0.26 + 0.2 * 2.52) + 0.5)
     assert math.isclose(c.nets["X"].cap.wire, 2.0)
+
+
+# ------------------------------------------------------ bundled samples ----
+
+SAMPLES = __import__("pathlib").Path(__file__).resolve().parents[2] / "sample_layouts"
+
+
+def test_sample_dyn_nand3_schematic():
+    """sample_layouts/DYN_NAND3.sp with the dsk18 tech.  Hand calculation with the
+    dsk18 numbers (nmos cj 0.95, cjsw = cjswg 0.22, pmos cj 1.10, cjsw = cjswg 0.28,
+    cox 8.5, cgo 0.25; prelayout 0.48 / 0.26 µm):
+      X  pmos drains MPRE (AD .288, PD 2.16, W .6) + MKEEP (.144, 1.56, .3):
+           area .432·1.10 = .4752, field (1.56 + 1.26)·.28 = .7896, gate .9·.28 = .252
+         nmos drain MA (AD .48, PD 2.96, W 1): .48·.95 = .456, 1.96·.22 = .4312, 1·.22 = .22
+         gate of the inverter: 8.5·.18·(.6 + 1.2) = 2.754
+         overlap .25·(.6 + .3 + 1) + 2·.25·(.6 + 1.2) = .475 + .9 = 1.375, wire 1.3 (CWX)
+         total .9312 + 1.2208 + .472 + 2.754 + 1.375 + 1.3 = 8.053
+      n1 (MA source, MB drain, both estimated uncontacted): area 2·.26 = .52 -> .494,
+         field 2·(1 + .52) = 3.04 -> .6688, gate 2 -> .44, overlap .5 -> 2.1028
+      n3 (MC source W 1, MFOOT drain W 1.2, uncontacted): area .26 + .312 = .572 -> .5434,
+         field 1.52 + 1.72 = 3.24 -> .7128, gate 2.2 -> .484, overlap .55 -> 2.2902
+    """
+    from extract.techfile import load_tech
+
+    tech = load_tech(SAMPLES / "dsk18.toml")
+    c = read_schematic(SAMPLES / "DYN_NAND3.sp", tech)
+    assert c.cell == "DYN_NAND3"
+    assert sorted(d.name for d in c.devices) == ["MA", "MB", "MC", "MFOOT", "MINVN", "MINVP", "MKEEP", "MPRE"]
+    assert [n for n in c.nets if c.nets[n].labelled] == ["A", "B", "C", "CLK", "OUT", "VDD", "VSS", "X"]
+    assert c.device("MKEEP").l_um == 0.36 and c.device("MFOOT").w_um == 1.2
+    assert c.nets["X"].cap.junction_area == pytest.approx(0.9312)
+    assert c.nets["X"].cap_ff == pytest.approx(8.053)
+    assert c.nets["n1"].cap_ff == pytest.approx(2.1028)
+    assert c.nets["n3"].cap_ff == pytest.approx(2.2902)
+    # DYN_NAND3_LONG.sp gives no AD/AS/PD/PS at all; the contacted estimates (W·0.48,
+    # 2W + 0.96) are the very values DYN_NAND3.sp writes on X, so X comes out the same.
+    long = read_schematic(SAMPLES / "DYN_NAND3_LONG.sp", tech)
+    assert long.nets["X"].cap.as_dict() == pytest.approx(c.nets["X"].cap.as_dict())
+    assert long.device("MA").w_um == 1.0 and long.device("MKEEP").l_um == 0.36

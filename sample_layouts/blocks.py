@@ -54,7 +54,16 @@ _ROUTE_Y = 6.5  # keeper feedback route  # actives below are nmos, above are pmo
 
 
 def rails(sk: Sketch, x0: float, x1: float, vdd: str = "VDD", vss: str = "VSS") -> None:
-    """Horizontal VSS (y 0–0.6) and VDD (y 7.4–8.0) metal1 rails from x0 to x1."""
+    """Horizontal VSS (y 0–0.6) and VDD (y 7.4–8.0) metal1 rails.
+
+    Parameters
+    ----------
+    sk : Sketch
+    x0, x1 : float
+        x extent of both rails.
+    vdd, vss : str
+        Their labels (placed 0.3 µm in from the left end).
+    """
     sk.rect("metal1", x0, 0.0, x1, 0.6)
     sk.rect("metal1", x0, CELL_H - 0.6, x1, CELL_H)
     sk.label("metal1", vss, x0 + 0.3, 0.3)
@@ -62,18 +71,43 @@ def rails(sk: Sketch, x0: float, x1: float, vdd: str = "VDD", vss: str = "VSS") 
 
 
 def strap(sk: Sketch, x: float, y_from: float, y_to: float) -> None:
-    """Vertical metal1 strap of width :data:`STRAP_W` centred on x; it
-    reaches half its width past both ends (covering a contact there)."""
+    """Vertical metal1 strap of width :data:`STRAP_W` centred on x.
+
+    Parameters
+    ----------
+    sk : Sketch
+    x : float
+        Centre line.
+    y_from, y_to : float
+        Ends; the strap reaches half its width past both (so it covers a
+        contact centred on either end).
+    """
     sk.wire("metal1", [(x, y_from), (x, y_to)], STRAP_W)
 
 
 def gate(sk: Sketch, xr: tuple[float, float], y_lo: float, y_hi: float) -> None:
-    """Vertical poly over the x range ``xr`` from y_lo to y_hi."""
+    """Vertical poly over the x range ``xr`` from y_lo to y_hi.
+
+    Parameters
+    ----------
+    sk : Sketch
+    xr : (float, float)
+        The channel's x range (its length L).
+    y_lo, y_hi : float
+        y extent; at least :data:`EXT` beyond the active on both sides.
+    """
     sk.rect("poly", xr[0], y_lo, xr[1], y_hi)
 
 
 def poly_contact(sk: Sketch, x: float, y: float) -> None:
-    """A 0.4 × 0.4 µm poly pad with a contact in its centre."""
+    """A 0.4 × 0.4 µm poly pad with a contact in its centre (x, y).
+
+    Parameters
+    ----------
+    sk : Sketch
+    x, y : float
+        Centre; keep the pad off active (it would make a channel).
+    """
     sk.rect("poly", x - 0.2, y - 0.2, x + 0.2, y + 0.2)
     sk.contact(x, y)
 
@@ -88,7 +122,16 @@ def implants(sk: Sketch) -> None:
     nimplant is the bounding box of the nmos actives (those below
     y = 4.15) grown by 0.2 µm; pimplant likewise for the pmos actives;
     nwell is the pimplant box grown by 0.3 µm and carried up over the
-    VDD rail.
+    VDD rail.  Call it after every active is drawn.
+
+    Parameters
+    ----------
+    sk : Sketch
+        Its ``active`` shapes decide the boxes; the implants are added to it.
+
+    Notes
+    -----
+    One pass over the active shapes: linear in their number.
     """
     boxes = {"n": [], "p": []}
     for pts in sk.shapes.get("active", []):
@@ -109,8 +152,17 @@ def implants(sk: Sketch) -> None:
 
 
 def bus(sk: Sketch, x0: float, x1: float, name: str, label_x: float) -> None:
-    """The dynamic-node bus: horizontal metal1 (0.34 µm wide, centre
-    y = 3.85) from x0 to x1, labelled ``name`` at ``label_x``."""
+    """The dynamic-node bus: horizontal metal1, 0.34 µm wide, centre y 3.85.
+
+    Parameters
+    ----------
+    sk : Sketch
+    x0, x1 : float
+        Ends of the centre line (the bus reaches 0.17 µm past them).
+    name : str
+        Its label, placed at (label_x, 3.85).
+    label_x : float
+    """
     sk.wire("metal1", [(x0, BUS_Y), (x1, BUS_Y)], BUS_W)
     sk.label("metal1", name, label_x, BUS_Y)
 
@@ -134,6 +186,14 @@ def receiver(sk: Sketch, inv_x: float, out: str, strap_top: float | None = None)
     dict
         ``pad_x`` (gate contact on the bus, centre), ``out_x`` (output
         strap centre) and ``x_max`` (right edge).
+
+    Examples
+    --------
+    >>> sk = Sketch()
+    >>> receiver(sk, 2.0, "OUT")
+    {'pad_x': 2.34, 'out_x': 2.9, 'x_max': 3.14}
+    >>> len(sk.shapes["active"]), len(sk.shapes["contact"])
+    (6, 5)
     """
     inv_x = snap(inv_x)
     n = strip(sk, inv_x, N_Y0, [("d", 0.48, 0.6), ("g", 0.18, 0.6), ("d", 0.48, 0.6)])
@@ -192,7 +252,16 @@ def precharge_keeper_receiver(
     -----
     Devices (W/L, µm): precharge pmos 0.6/0.18, keeper pmos 0.3/0.36,
     inverter nmos 0.6/0.18 and pmos 1.2/0.18.  Every source/drain piece
-    is 0.48 µm long with one contact in its middle.
+    is 0.48 µm long with one contact in its middle.  Constant cost.
+
+    Examples
+    --------
+    >>> sk = Sketch()
+    >>> top = precharge_keeper_receiver(sk, clk_x=1.48, clk_bottom=1.2, inv_x=4.0)
+    >>> top["bus_x0"], top["bus_x1"], top["x_max"]
+    (1.24, 4.7, 5.5)
+    >>> sorted(text for _, text, _, _ in sk.labels)
+    ['CLK', 'OUT', 'X']
     """
     # precharge pmos: [node | clock | VDD]
     pre = strip(sk, clk_x - 0.48, P_Y0, [("d", 0.48, 0.6), ("g", 0.18, 0.6), ("d", 0.48, 0.6)])

@@ -16,7 +16,8 @@ import tomllib
 
 import gdstk
 import pytest
-from shapely.geometry import Point, Polygon
+from shapely.affinity import rotate
+from shapely.geometry import Point, Polygon, box
 from shapely.ops import unary_union
 
 from sample_layouts import make_samples
@@ -52,6 +53,16 @@ def cells(lib):
 
 
 # ---------------------------------------------------------------- the file
+
+
+def test_doctests_of_the_drawing_modules():
+    # pytest's testpaths do not reach sample_layouts/, so run them here
+    import doctest
+    import importlib
+
+    for mod in ("drawing", "blocks", "nand3_cells", "domino_cells", "more_cells", "make_samples"):
+        result = doctest.testmod(importlib.import_module(f"sample_layouts.{mod}"))
+        assert result.failed == 0 and result.attempted > 0, mod
 
 
 def test_every_cell_is_its_own_top_cell_in_um(lib):
@@ -311,6 +322,25 @@ def test_cell_has_exactly_the_described_transistors(cells, name):
     assert trace(cells[name]) == want
 
 
+@pytest.mark.parametrize("name", CELL_NAMES)
+def test_every_gate_reaches_0_2_um_past_its_active(cells, name):
+    # brief: poly extends ≥ 0.2 µm beyond the active on both sides.  Every
+    # gate is vertical except the 45° one, which is turned upright first;
+    # then the poly must cover the channel grown by 0.2 µm along y.
+    cell = cells[name]
+    act = unary_union(_polys(cell, "active"))
+    poly = unary_union(_polys(cell, "poly"))
+    for ch in _parts(act.intersection(poly)):
+        a, p = act, poly
+        x0, y0, x1, y1 = ch.bounds
+        if x1 - x0 > 0.5 and y1 - y0 > 0.5:  # the 45° channel: turn it upright
+            ch, a, p = (rotate(g, -45, origin=(0, 0)) for g in (ch, act, poly))
+        x0, y0, x1, y1 = ch.bounds
+        grown = box(x0 + 2e-3, y0 - 0.2 + 2e-3, x1 - 2e-3, y1 + 0.2 - 2e-3)
+        assert p.covers(grown), (name, ch.bounds)
+        assert not a.intersects(box(x0 + 2e-3, y1 + 2e-3, x1 - 2e-3, y1 + 0.2 - 2e-3))
+
+
 def test_nand3_has_eight_transistors(cells):
     # precharge, keeper, A, B, C, footer and the two inverter devices
     assert len(trace(cells["DYN_NAND3"])) == 8
@@ -501,12 +531,12 @@ def test_flat_array_has_8_transistors_per_copy_and_separate_rows():
     (top,) = make_samples.nand3_array(3, 2, flatten=True).top_level()
     assert not top.references
     assert _transistors(top) == 8 * 3 * 2
-    # rails: each row's VDD and VSS join along x but rows never touch, so
-    # the metal1 union has one VSS and one VDD rail polygon per row ... at
-    # least: 2 rows × 2 rails that are all different shapes
+    # each row's rails join along x, but no rail touches another: the four
+    # rail points (VSS, VDD of both rows) lie in four different metal1 shapes
     m1 = unary_union(_polys(top, "metal1"))
     height = 8.2 + 0.6  # cell bounding box (nwell top 8.2) plus the row gap
-    rails = {i for i, g in enumerate(_parts(m1)) for y in (0.3, 7.7, height + 0.3, height + 7.7) if g.covers(Point(1.0, y))}
+    ys = (0.3, 7.7, height + 0.3, height + 7.7)
+    rails = {i for i, g in enumerate(_parts(m1)) for y in ys if g.covers(Point(1.0, y))}
     assert len(rails) == 4
 
 

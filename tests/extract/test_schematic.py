@@ -348,6 +348,12 @@ def test_global_nets_and_ground_node():
     assert c.nets["vdd"].role == "power" and c.nets["VSS"].role == "ground"
 
 
+def test_dot_commands_in_any_case():
+    # SPICE syntax: keywords are case-insensitive
+    c = parse(".PARAM WX=2U\n.SUBCKT INV A Y VDD VSS\nMP Y A VDD VDD PCH W={wx} L=0.18U\n.ENDS INV\n.END\n")
+    assert c.cell == "INV" and c.device("MP").w_um == 2.0 and c.device("MP").type == "pmos"
+
+
 def test_case_insensitive_nets_keep_the_port_spelling():
     c = parse(cell("M1 x a vss vss nch W=1u L=0.18u", ports="X A VSS"))
     assert sorted(c.nets) == ["A", "VSS", "X"]

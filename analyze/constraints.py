@@ -183,8 +183,14 @@ def load_constraints(path: str) -> Constraints:
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         line = _TOML_LINE.search(msg)
-        place = f"line {line.group(1)}" if line else None
-        raise InputError(path, "not valid TOML: " + _TOML_LINE.sub("", msg).strip(), place) from None
+        if line:
+            place = f"line {line.group(1)}"
+        elif "end of document" in msg:
+            place = f"line {max(1, len(raw.splitlines()))}"
+        else:
+            place = None
+        msg = _TOML_LINE.sub("", msg).replace("(at end of document)", "at the end of the file")
+        raise InputError(path, "not valid TOML: " + msg.strip(), place) from None
     return parse_constraints(data, path)
 
 

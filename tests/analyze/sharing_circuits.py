@@ -9,11 +9,18 @@ matching :class:`Stage`, so tests need not run stage recognition.
 
 from __future__ import annotations
 
+import itertools
+
+import networkx as nx
+
+from analyze.charge import NodeCharge, node_charge
+from analyze.redistribution import final_voltage
+from analyze.threshold import pass_limit
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import MosParams, NetRoles, Tech
 from analyze.stage import Receiver, Stage
 
-__all__ = ["NMOS", "PMOS", "make_tech", "make_net", "domino", "mux"]
+__all__ = ["NMOS", "PMOS", "make_tech", "make_net", "domino", "mux", "allowed", "brute_force"]
 
 NMOS = dict(vt0=0.45, gamma=0.45, phi=0.85, kp=280.0, cox=8.5, cgo=0.25, cj=0.95, cjsw=0.22,
             cjswg=0.22, mj=0.40, mjsw=0.30, pb=0.80, pbsw=0.80)
@@ -131,3 +138,59 @@ def mux(tech: Tech, legs: int, x_linear: float = 6.0):
         ev.append((f"MD{i:02d}", f"m{i:02d}", f"D{i:02d}", "FOOT"))
         caps[f"m{i:02d}"] = dict(linear=0.2 + 0.05 * ((7 * i) % 11), nmos=(0.5, 1.5, 2.0))
     return domino(tech, ev, caps)
+
+
+def allowed(pattern: dict, constraints) -> bool:
+    """The constraint definitions of the contract, checked directly."""
+    if constraints is None:
+        return True
+    return (
+        all(sum(pattern[n] for n in g) == 1 for g in constraints.one_hot)
+        and all(pattern[a] != pattern[b] for a, b in constraints.complement)
+        and all(pattern[n] == v for n, v in constraints.fixed)
+    )
+
+
+def brute_force(circuit, stage, tech, constraints=None, precharged=()):
+    """``(count, best)`` by enumeration of every pattern: ``best`` is
+    ``((rounded normalised v_final, pattern tuple over sorted inputs), shared
+    node set)`` or None.  Components by networkx, voltages by
+    analyze.redistribution.final_voltage."""
+    vdd = tech.vdd
+    mirror = stage.polarity == "p"
+    fixed = {stage.rail, stage.footer_node} - {None}
+    devs = [circuit.device(n) for n in stage.evaluation]
+    inputs = sorted({d.gate for d in devs})
+    v_lim = pass_limit(tech.mos["pmos" if mirror else "nmos"], vdd)
+
+    def charge(names):
+        total = NodeCharge.linear(0.0, vdd)
+        for n in names:
+            q = node_charge(circuit.nets[n], tech)
+            total = total + (q.mirrored() if mirror else q)
+        return total
+
+    count, best, memo = 0, None, {}
+    for values in itertools.product((0, 1), repeat=len(inputs)):
+        pat = dict(zip(inputs, values))
+        if not allowed(pat, constraints):
+            continue
+        g = nx.Graph()
+        g.add_node("X")
+        for d in devs:
+            if pat[d.gate] == (1 if d.type == "nmos" else 0):
+                a, b = ("RAIL" if t in fixed else t for t in (d.drain, d.source))
+                g.add_edge(a, b)
+        comp = nx.node_connected_component(g, "X")
+        if "RAIL" in comp:
+            continue
+        count += 1
+        shared = frozenset(comp - {"X"})
+        if shared not in memo:
+            pre = {n for n in shared if n in stage.secondary_precharge or n in precharged}
+            r = final_voltage(charge(["X"]), charge(sorted(shared - pre)), charge(sorted(pre)), v_lim)
+            memo[shared] = r.v_final
+        key = (round(memo[shared], 9), values)
+        if best is None or key < best[0]:
+            best = (key, shared)
+    return count, best

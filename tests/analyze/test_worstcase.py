@@ -14,19 +14,15 @@ import itertools
 import math
 import time
 
-import networkx as nx
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from analyze.charge import NodeCharge, node_charge
 from analyze.constraints import parse_constraints, stage_blocks
 from analyze.patterns import bind_blocks, count_counted
-from analyze.redistribution import final_voltage
 from analyze.sharing import build_model
-from analyze.threshold import pass_limit
 from analyze.worstcase import worst_case
-from sharing_circuits import domino, make_tech, mux
+from sharing_circuits import brute_force, domino, make_tech, mux
 
 TECH = make_tech()
 
@@ -81,64 +77,11 @@ def sp_stages(draw):
     return circuit, stage, constraints
 
 
-def allowed(pattern: dict, constraints) -> bool:
-    """The constraint definitions of the contract, checked directly."""
-    if constraints is None:
-        return True
-    return (
-        all(sum(pattern[n] for n in g) == 1 for g in constraints.one_hot)
-        and all(pattern[a] != pattern[b] for a, b in constraints.complement)
-        and all(pattern[n] == v for n, v in constraints.fixed)
-    )
-
-
-def brute_force(circuit, stage, constraints):
-    """(count, best (rounded normalised v, pattern tuple), shared set) by enumeration."""
-    vdd = TECH.vdd
-    mirror = stage.polarity == "p"
-    fixed = {stage.rail, stage.footer_node} - {None}
-    devs = [circuit.device(n) for n in stage.evaluation]
-    inputs = sorted({d.gate for d in devs})
-    v_lim = pass_limit(TECH.mos["pmos" if mirror else "nmos"], vdd)
-
-    def charge(names):
-        total = NodeCharge.linear(0.0, vdd)
-        for n in names:
-            q = node_charge(circuit.nets[n], TECH)
-            total = total + (q.mirrored() if mirror else q)
-        return total
-
-    count, best, memo = 0, None, {}
-    for values in itertools.product((0, 1), repeat=len(inputs)):
-        pat = dict(zip(inputs, values))
-        if not allowed(pat, constraints):
-            continue
-        g = nx.Graph()
-        g.add_node("X")
-        for d in devs:
-            if pat[d.gate] == (1 if d.type == "nmos" else 0):
-                a, b = ("RAIL" if t in fixed else t for t in (d.drain, d.source))
-                g.add_edge(a, b)
-        comp = nx.node_connected_component(g, "X")
-        if "RAIL" in comp:
-            continue
-        count += 1
-        shared = frozenset(comp - {"X"})
-        if shared not in memo:
-            pre = {n for n in shared if n in stage.secondary_precharge}
-            r = final_voltage(charge(["X"]), charge(sorted(shared - pre)), charge(sorted(pre)), v_lim)
-            memo[shared] = r.v_final
-        key = (round(memo[shared], 9), values)
-        if best is None or key < best[0]:
-            best = (key, shared)
-    return count, best
-
-
 @settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(sp_stages())
 def test_search_matches_brute_force(case):
     circuit, stage, constraints = case
-    count, best = brute_force(circuit, stage, constraints)
+    count, best = brute_force(circuit, stage, TECH, constraints)
     model = build_model(circuit, stage, TECH)
     choices = bind_blocks(model, stage_blocks(constraints, model.inputs))
     assert count_counted(model, choices) == count

@@ -39,7 +39,9 @@ Capacitor lines
     ``wire`` part of each terminal that is not a supply or ground net
     (node ``0`` is ground).  A capacitor between two signal nets is added
     to both, as if each other end were held still: conservative for the
-    internal nodes that share charge.  Coupling noise is not modelled.
+    internal nodes that share charge.  Coupling noise is not modelled.  A
+    capacitor with both ends on one net, or only on supplies, is ignored
+    (with a finding).
 Bulk
     The bulk terminal is not used: the type comes from the model, and the
     body is taken at the rail.
@@ -269,10 +271,13 @@ class _Builder:
             raise self.error(f"{name}: capacitance must be >= 0, got {vals['c']:g}", card.place)
         nodes = {self.net(n, prefix, ports) for n in pos[1:3]}
         signal = [n for n in nodes if self.tech.role_of(self.names[n]) not in ("power", "ground")]
+        if len(nodes) == 1:
+            signal = []
         for n in signal:
             self.wire[n] += _to_um(farads, 1e15)
         if not signal:
-            self.findings.append(Finding(f"{self.path}: {card.place}: {name} joins no signal net; ignored"))
+            why = "has both ends on one net" if len(nodes) == 1 else "joins no signal net"
+            self.findings.append(Finding(f"{self.path}: {card.place}: {name} {why}; ignored"))
 
     def subcircuit(self, card, pos, params, prefix, ports, scope, stack) -> None:
         name = prefix + pos[0]

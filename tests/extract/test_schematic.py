@@ -288,6 +288,9 @@ def test_capacitors_are_wire_estimates():
     assert c.nets["VSS"].cap.wire == 0 and c.nets["VDD"].cap.wire == 0
     assert "0" not in c.nets  # SPICE syntax: node 0 is ground -> the tech's first ground net
     assert any("C5 joins no signal net" in f.message for f in c.findings)
+    shorted = parse(cell("M1 X A VSS VSS nch W=1u L=0.18u\nC1 X x 1f"))
+    assert shorted.nets["X"].cap.wire == 0  # hand: a capacitor across one net stores nothing
+    assert any("C1 has both ends on one net" in f.message for f in shorted.findings)
 
 
 @pytest.mark.parametrize(

@@ -2,7 +2,7 @@
 
 Run: ``python3 tests/bench/bench_extract.py [--sizes 1000,10000,100000]``
 
-Builds flat-placed arrays of the DYN_NAND3 sample cell (9 transistors
+Builds flat-placed arrays of the DYN_NAND3 sample cell (8 transistors
 each) with ``sample_layouts.make_samples.nand3_array``, writes each to a
 temporary GDSII file and runs ``dynshare extract`` on it in a fresh
 process (so the peak RSS is that of one extraction).  Prints wall time,
@@ -47,7 +47,7 @@ def main(argv=None) -> int:
     print(f"{'transistors':>12} {'instances':>10} {'time s':>8} {'peak MB':>8} {'exponent':>9}")
     with tempfile.TemporaryDirectory() as tmp:
         for target in (int(s) for s in args.sizes.split(",")):
-            cells = max(1, round(target / 9))
+            cells = max(1, round(target / 8))
             nx = max(1, int(math.sqrt(cells)))
             ny = max(1, math.ceil(cells / nx))
             lib = nand3_array(nx, ny)

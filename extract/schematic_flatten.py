@@ -26,11 +26,15 @@ Multiplier and fingers
     fingers: one device per finger.  ``M=k`` on an ``X`` line makes k copies
     ``Xname.1/`` ... (unless the subcircuit declares a parameter ``m``).
 Junction estimates (``[prelayout]``)
-    A missing AD (AS) is ``W × length`` and a missing PD (PS) is
-    ``2·W + 2·length`` (field edges ``W + 2·length`` plus the gate edge
-    ``W``), W the whole device width before the NF split.  ``length`` is
-    ``uncontacted_length`` on an internal stack node and
-    ``contacted_length`` elsewhere.  An internal stack node is a net that
+    On a contacted node a missing AD (AS) is ``W × contacted_length`` and
+    a missing PD (PS) is ``2·W + 2·contacted_length`` (field edges
+    ``W + 2·length`` plus the gate edge ``W``), W the whole device width
+    before the NF split.  An internal stack node is one strip of
+    diffusion ``W × uncontacted_length`` between two gates, shared by the
+    two series devices, so each of its two terminals carries half of it:
+    AD = ``W·uncontacted_length/2`` and PD = ``W + uncontacted_length``
+    (its own gate edge W plus one of the strip's two field edges).
+    An internal stack node is a net that
     is not a port, not a supply, not a gate, and touched by exactly two
     channel terminals of devices of one type, counted per M line (before
     M/NF are expanded).  Each of the four values is estimated on its own.
@@ -334,10 +338,17 @@ class _Builder:
             k, w = mos.nf, mos.w
             geo = {}
             for term, net in (("d", mos.d), ("s", mos.s)):
-                length = pre.uncontacted_length if net in internal else pre.contacted_length
                 area = mos.given["ad" if term == "d" else "as"]
                 perim = mos.given["pd" if term == "d" else "ps"]
-                geo[term] = (w * length if area is None else area, 2 * w + 2 * length if perim is None else perim)
+                if net in internal:
+                    # one W × uncontacted_length strip shared by the two
+                    # series devices: each terminal carries half of it
+                    length = pre.uncontacted_length
+                    est = (w * length / 2, w + length)
+                else:
+                    length = pre.contacted_length
+                    est = (w * length, 2 * w + 2 * length)
+                geo[term] = (est[0] if area is None else area, est[1] if perim is None else perim)
             shown = [self.names[n] for n in (mos.d, mos.g, mos.s)]
             for i in range(mos.count):
                 name = mos.name if mos.count == 1 else f"{mos.name}.{i + 1}"

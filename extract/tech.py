@@ -100,11 +100,35 @@ class Prelayout:
     """Rules for estimating junctions that a schematic leaves out
     (``[prelayout]``).
 
-    A source/drain of width W that is contacted (a node that leaves the
-    series stack) is taken as a W × ``contacted_length`` rectangle; one
-    shared by two series devices inside a stack as W ×
-    ``uncontacted_length``.  The edge along the gate is W; the other three
-    sides are field edges.
+    A missing AD (AS) or PD (PS) of a device of width W (the whole device;
+    with ``NF=k`` each finger gets 1/k of it) is estimated per terminal:
+
+    - contacted node (one that leaves the series stack): a rectangle of
+      its own, AD = W·``contacted_length`` and
+      PD = 2·W + 2·``contacted_length`` (gate edge W plus the field edges
+      W + 2·``contacted_length``);
+    - internal stack node (a net joined by exactly two source/drain
+      terminals of devices of one type and by nothing else: not a port,
+      supply or gate): one strip W × ``uncontacted_length`` between two
+      gates, shared by the two series devices, so each of its two
+      terminals carries half of it: AD = W·``uncontacted_length``/2 and
+      PD = W + ``uncontacted_length`` (its own gate edge W plus one of the
+      strip's two field edges).  The two terminals together count the
+      strip once.
+
+    Parameters
+    ----------
+    contacted_length : float
+        µm of diffusion beyond the gate at a contacted node.
+    uncontacted_length : float
+        µm of diffusion between the two gates of a series stack.
+
+    Notes
+    -----
+    The rectangles are the usual pre-layout estimate of source/drain
+    geometry (common practice); splitting a shared strip in half between
+    the two devices that share it is our convention, so that the stack
+    node's estimate matches a drawn stack instead of counting it twice.
     """
 
     contacted_length: float = 0.50

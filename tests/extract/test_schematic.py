@@ -463,16 +463,20 @@ def test_capacitance_by_hand():
       MP drain X : given AD 0.3, PD 2.2 -> gate edge 0.6, field 2.2 - 0.6 = 1.6
       MP source VDD : estimated, contacted 0.5: area 0.6·0.5 = 0.3, PS 2·0.6 + 2·0.5 = 2.2
       MA drain X : estimated, contacted: area 1·0.5 = 0.5, field 1 + 2·0.5 = 2.0, gate 1
-      n1 : internal stack node (two nmos channel terminals, not a port, not a gate)
-           -> uncontacted 0.25 on both sides: area 2·0.25 = 0.5, field 2·(1 + 0.5) = 3.0,
-           gate 2·1 = 2
+      n1 : internal stack node (two nmos channel terminals, not a port, not a gate):
+           one strip W × uncontacted = 1 × 0.25 shared by MA and MB, so each terminal
+           carries half of it: AS(MA) = AD(MB) = 1·0.25/2 = 0.125 and
+           PS(MA) = PD(MB) = W + 0.25 = 1.25 (own gate edge 1, field 0.25).
+           Sum: area 2·0.125 = 0.25 (= the strip 1 × 0.25), field 2·0.25 = 0.5 (the strip's
+           two ends), gate 2·1 = 2 (its two gate edges)
     X:
       junction_area      = 1.2·0.3 + 1.0·0.5  = 0.36 + 0.5  = 0.86
       junction_sidewall  = 0.25·1.6 + 0.2·2.0 = 0.4 + 0.4   = 0.80
       junction_gate_edge = 0.35·0.6 + 0.3·1.0 = 0.21 + 0.3  = 0.51
       overlap            = 0.2·0.6 + 0.25·1.0 = 0.12 + 0.25 = 0.37
       wire 1.0 (C1), gate 0                  -> total 3.54
-    n1: area 0.5, sidewall 0.2·3 = 0.6, gate edge 0.3·2 = 0.6, overlap 2·0.25 = 0.5 -> 2.2
+    n1: area 1.0·0.25 = 0.25, sidewall 0.2·0.5 = 0.1, gate edge 0.3·2 = 0.6,
+        overlap 2·0.25 = 0.5 -> 0.25 + 0.1 + 0.6 + 0.5 = 1.45
     A : gate 8·1·0.18 = 1.44, overlap 2·0.25·1 = 0.5
     B : gate 8·1·0.2 = 1.6, overlap 0.5
     CLK: gate 8·0.6·0.18 = 0.864, overlap 2·0.2·0.6 = 0.24
@@ -481,7 +485,7 @@ def test_capacitance_by_hand():
     c = parse(HAND)
     expect = {
         "X": dict(junction_area=0.86, junction_sidewall=0.80, junction_gate_edge=0.51, wire=1.0, gate=0.0, overlap=0.37),
-        "n1": dict(junction_area=0.5, junction_sidewall=0.6, junction_gate_edge=0.6, wire=0.0, gate=0.0, overlap=0.5),
+        "n1": dict(junction_area=0.25, junction_sidewall=0.1, junction_gate_edge=0.6, wire=0.0, gate=0.0, overlap=0.5),
         "A": dict(junction_area=0.0, junction_sidewall=0.0, junction_gate_edge=0.0, wire=0.0, gate=1.44, overlap=0.5),
         "B": dict(junction_area=0.0, junction_sidewall=0.0, junction_gate_edge=0.0, wire=0.0, gate=1.6, overlap=0.5),
         "CLK": dict(junction_area=0.0, junction_sidewall=0.0, junction_gate_edge=0.0, wire=0.0, gate=0.864, overlap=0.24),
@@ -490,25 +494,44 @@ def test_capacitance_by_hand():
     for net, parts in expect.items():
         assert c.nets[net].cap.as_dict() == pytest.approx(parts, abs=1e-12), net
     assert c.nets["X"].cap_ff == pytest.approx(3.54)
-    assert c.nets["n1"].cap_ff == pytest.approx(2.2)
+    assert c.nets["n1"].cap_ff == pytest.approx(1.45)
     mp = c.device("MP")
     assert (mp.ad_um2, mp.pd_um, mp.as_um2, mp.ps_um) == pytest.approx((0.3, 2.2, 0.3, 2.2))
+    # hand: MA drain X contacted 1·0.5 = 0.5, 2·1 + 2·0.5 = 3.0; source n1 half strip 0.125, 1.25
     ma = c.device("MA")
-    assert (ma.ad_um2, ma.pd_um, ma.as_um2, ma.ps_um) == pytest.approx((0.5, 3.0, 0.25, 2.5))
+    assert (ma.ad_um2, ma.pd_um, ma.as_um2, ma.ps_um) == pytest.approx((0.5, 3.0, 0.125, 1.25))
+    mb = c.device("MB")
+    assert (mb.ad_um2, mb.pd_um, mb.as_um2, mb.ps_um) == pytest.approx((0.125, 1.25, 0.5, 3.0))
     j = c.nets["n1"].junctions["nmos"]
-    assert (j.area_um2, j.field_perimeter_um, j.gate_perimeter_um) == pytest.approx((0.5, 3.0, 2.0))
+    assert (j.area_um2, j.field_perimeter_um, j.gate_perimeter_um) == pytest.approx((0.25, 0.5, 2.0))
     assert set(c.nets["X"].junctions) == {"nmos", "pmos"}
 
 
 def test_stack_node_rule_is_counted_before_the_nf_split():
     """Our convention: the internal-node test counts M lines, so a stack of two NF=2
-    devices still has an uncontacted middle node.  Hand: W = 1 per device,
-    uncontacted 0.25 -> area 2·(1·0.25) = 0.5 on n1; a node that is also a gate
-    (n2 below) is contacted: 1·0.5 + 1·0.5 = 1.0."""
+    devices still has an uncontacted middle node, and its estimate is made on the whole
+    device width and then split: with NF=k each finger gets 1/k of the terminal's AD and
+    PD (the totals, as BSIM4 reads them), so fingering does not change the node.
+
+    Hand, W = 1 per device, uncontacted 0.25, contacted 0.5:
+      n1 (MA, MB both NF=2): each terminal AD = 1·0.25/2 = 0.125, PD = 1 + 0.25 = 1.25;
+         per finger (W 0.5) AD 0.0625, PD 0.625 -> gate edge 0.5, field 0.125.
+         Four finger terminals: area 4·0.0625 = 0.25, field 4·0.125 = 0.5, gate 4·0.5 = 2.0,
+         the same strip 1 × 0.25 (two ends 0.25, two gate edges 1) as
+      n3 (MF, MG unfingered): 2·0.125 = 0.25, field 2·0.25 = 0.5, gate 2·1 = 2.0.
+      n2 is also a gate (of ME), so it is contacted: area 1·0.5 + 1·0.5 = 1.0."""
     c = parse(cell("MA X A n1 VSS nch W=1u L=0.18u NF=2\nMB n1 B VSS VSS nch W=1u L=0.18u NF=2\n"
+                   "MF X A n3 VSS nch W=1u L=0.18u\nMG n3 B VSS VSS nch W=1u L=0.18u\n"
                    "MC X A n2 VSS nch W=1u L=0.18u\nMD n2 B VSS VSS nch W=1u L=0.18u\n"
                    "ME VSS n2 VSS VSS nch W=1u L=0.18u AD=0 AS=0 PD=0 PS=0"))
-    assert c.nets["n1"].junctions["nmos"].area_um2 == pytest.approx(0.5)
+    j = c.nets["n1"].junctions["nmos"]
+    assert (j.area_um2, j.field_perimeter_um, j.gate_perimeter_um) == pytest.approx((0.25, 0.5, 2.0))
+    assert c.nets["n1"].cap.as_dict() == pytest.approx(c.nets["n3"].cap.as_dict())
+    for finger in ("MA.1", "MA.2"):
+        d = c.device(finger)
+        # hand: W 1/2 = 0.5; source n1 0.125/2, 1.25/2; drain X contacted 0.5/2, 3.0/2
+        assert (d.w_um, d.as_um2, d.ps_um, d.ad_um2, d.pd_um) == pytest.approx((0.5, 0.0625, 0.625, 0.25, 1.5))
+    assert (c.device("MB.2").ad_um2, c.device("MB.2").pd_um) == pytest.approx((0.0625, 0.625))
     assert c.nets["n2"].junctions["nmos"].area_um2 == pytest.approx(1.0)
     # AD=0 PD=0 (a diffusion counted elsewhere): no junction at all, as level 1 sees it
     assert c.device("ME").pd_um == 0
@@ -578,10 +601,17 @@ def test_sample_dyn_nand3_schematic():
          gate of the inverter: 8.5·.18·(.6 + 1.2) = 2.754
          overlap .25·(.6 + .3 + 1) + 2·.25·(.6 + 1.2) = .475 + .9 = 1.375, wire 1.3 (CWX)
          total .9312 + 1.2208 + .472 + 2.754 + 1.375 + 1.3 = 8.053
-      n1 (MA source, MB drain, both estimated uncontacted): area 2·.26 = .52 -> .494,
-         field 2·(1 + .52) = 3.04 -> .6688, gate 2 -> .44, overlap .5 -> 2.1028
-      n3 (MC source W 1, MFOOT drain W 1.2, uncontacted): area .26 + .312 = .572 -> .5434,
-         field 1.52 + 1.72 = 3.24 -> .7128, gate 2.2 -> .484, overlap .55 -> 2.2902
+      n1 (MA source, MB drain, both estimated as an internal stack node: one strip
+         W × .26 shared, each terminal AD = W·.26/2, PD = W + .26):
+         area 2·(1·.26/2) = .26 -> .95·.26 = .247,
+         field 2·.26 = .52 -> .22·.52 = .1144, gate 2·1 = 2 -> .44,
+         overlap .25·(1 + 1) = .5 -> .247 + .1144 + .44 + .5 = 1.3014
+         (the drawn n1 piece of the layout: 1.0 × .26, perimeter 2.52 = 2.0 gate + .52
+         field, sample_layouts/README.md, gives the same 1.3014)
+      n2 (MB source, MC drain, W 1 both): the same as n1 -> 1.3014
+      n3 (MC source W 1, MFOOT drain W 1.2): area 1·.26/2 + 1.2·.26/2 = .13 + .156 = .286
+         -> .2717, field .26 + .26 = .52 -> .1144, gate 1 + 1.2 = 2.2 -> .484,
+         overlap .25·2.2 = .55 -> .2717 + .1144 + .484 + .55 = 1.4201
     """
     from extract.techfile import load_tech
 
@@ -593,8 +623,11 @@ def test_sample_dyn_nand3_schematic():
     assert c.device("MKEEP").l_um == 0.36 and c.device("MFOOT").w_um == 1.2
     assert c.nets["X"].cap.junction_area == pytest.approx(0.9312)
     assert c.nets["X"].cap_ff == pytest.approx(8.053)
-    assert c.nets["n1"].cap_ff == pytest.approx(2.1028)
-    assert c.nets["n3"].cap_ff == pytest.approx(2.2902)
+    assert c.nets["n1"].cap.junction_area == pytest.approx(0.247)
+    assert c.nets["n1"].cap_ff == pytest.approx(1.3014)
+    assert c.nets["n2"].cap_ff == pytest.approx(1.3014)
+    assert c.nets["n3"].cap.junction_area == pytest.approx(0.2717)
+    assert c.nets["n3"].cap_ff == pytest.approx(1.4201)
     # DYN_NAND3_LONG.sp gives no AD/AS/PD/PS at all; the contacted estimates (W·0.48,
     # 2W + 0.96) are the very values DYN_NAND3.sp writes on X, so X comes out the same.
     long = read_schematic(SAMPLES / "DYN_NAND3_LONG.sp", tech)

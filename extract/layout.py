@@ -23,7 +23,7 @@ import numpy as np
 
 from extract.errors import InputError
 
-__all__ = ["FlatLabel", "FlatLayout", "read_layout", "top_cells"]
+__all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
 
 
 @dataclass(frozen=True)
@@ -145,30 +145,22 @@ def _load_library(path: str):
     return lib
 
 
-def _reference_graph(path: str, lib) -> dict[str, list[str]]:
-    """Cell name -> names of the cells it references; missing cells raise."""
-    names = {c.name for c in lib.cells}
+def _reference_graph(lib) -> dict[str, list[str]]:
+    """Cell name -> names of the cells it references (missing ones included)."""
     graph = {}
     for c in lib.cells:
-        children = []
-        for ref in c.references:
-            child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
-            if child not in names:
-                raise InputError(path, f"references cell {child!r}, which is not in the file", f"cell {c.name}")
-            children.append(child)
-        graph[c.name] = children
+        graph[c.name] = [ref.cell if isinstance(ref.cell, str) else ref.cell.name for ref in c.references]
     return graph
 
 
-def _find_cycle(graph: dict[str, list[str]], start: str) -> list[str] | None:
-    """A reference cycle reachable from ``start`` (as a list of names), or None.
+def _check_tree(path: str, graph: dict[str, list[str]], start: str) -> None:
+    """Raise on a reference cycle or a missing cell reachable from ``start``.
 
     Iterative depth-first search, O(cells + references).
     """
-    state: dict[str, int] = {}
+    state: dict[str, int] = {start: 1}
     stack = [(start, iter(graph[start]))]
     trail = [start]
-    state[start] = 1
     while stack:
         name, it = stack[-1]
         child = next(it, None)
@@ -177,13 +169,15 @@ def _find_cycle(graph: dict[str, list[str]], start: str) -> list[str] | None:
             trail.pop()
             state[name] = 2
             continue
+        if child not in graph:
+            raise InputError(path, f"references cell {child!r}, which is not in the file", f"cell {name}")
         if state.get(child) == 1:
-            return trail[trail.index(child) :] + [child]
+            cycle = trail[trail.index(child) :] + [child]
+            raise InputError(path, "reference cycle: " + " -> ".join(cycle), f"cell {start}")
         if child not in state:
             state[child] = 1
             trail.append(child)
             stack.append((child, iter(graph[child])))
-    return None
 
 
 def top_cells(graph: dict[str, list[str]]) -> list[str]:
@@ -194,6 +188,61 @@ def top_cells(graph: dict[str, list[str]]) -> list[str]:
     """
     used = {child for children in graph.values() for child in children}
     return sorted(name for name in graph if name not in used)
+
+
+@dataclass
+class LayoutFile:
+    """A layout file read once, from which cells are flattened on demand."""
+
+    path: str
+    lib: object
+    graph: dict[str, list[str]]
+
+    @property
+    def cells(self) -> list[str]:
+        """Every cell defined in the file, sorted."""
+        return sorted(self.graph)
+
+
+def open_layout(path: str) -> LayoutFile:
+    """Read a GDSII or OASIS file (see :func:`read_layout` for the errors)."""
+    lib = _load_library(path)
+    return LayoutFile(path, lib, _reference_graph(lib))
+
+
+def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
+    """Flatten one cell of an opened file (see :func:`read_layout`)."""
+    path, lib, graph = layout.path, layout.lib, layout.graph
+    if cell is None:
+        tops = top_cells(graph)
+        if len(tops) != 1:
+            if not tops:
+                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
+            listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
+            raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
+        cell = tops[0]
+    if cell not in graph:
+        raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
+    _check_tree(path, graph, cell)
+
+    top = next(c for c in lib.cells if c.name == cell)
+    grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3
+    wanted = None if layers is None else {tuple(x) for x in layers}
+    flat = FlatLayout(path=path, cell=cell, grid_um=grid_um)
+    with _QuietNative():
+        polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        labels = top.get_labels(apply_repetitions=True, depth=None)
+    for poly in polys:
+        key = (int(poly.layer), int(poly.datatype))
+        if wanted is not None and key not in wanted:
+            continue
+        pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
+        if len(pts) >= 3:
+            flat.polygons.setdefault(key, []).append(pts)
+    for lab in labels:
+        x, y = (round(v / grid_um) * grid_um for v in lab.origin)
+        flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
+    return flat
 
 
 def read_layout(path: str, cell: str | None = None, layers=None) -> FlatLayout:
@@ -216,7 +265,7 @@ def read_layout(path: str, cell: str | None = None, layers=None) -> FlatLayout:
     ------
     InputError
         Missing/unreadable/corrupt file, unknown cell, no single top cell,
-        a reference cycle or a reference to a missing cell.
+        a reference cycle or a reference to a missing cell below the cell.
 
     Notes
     -----
@@ -225,37 +274,4 @@ def read_layout(path: str, cell: str | None = None, layers=None) -> FlatLayout:
     file's database unit so that transforms such as 90° rotations do not
     leave 1e-16 µm slivers.  Cost is linear in the flattened shape count.
     """
-    lib = _load_library(path)
-    graph = _reference_graph(path, lib)
-    if cell is None:
-        tops = top_cells(graph)
-        if len(tops) != 1:
-            if not tops:
-                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
-            listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
-            raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
-        cell = tops[0]
-    if cell not in graph:
-        raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
-    cycle = _find_cycle(graph, cell)
-    if cycle:
-        raise InputError(path, "reference cycle: " + " -> ".join(cycle), f"cell {cell}")
-
-    top = next(c for c in lib.cells if c.name == cell)
-    grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3
-    wanted = None if layers is None else {tuple(x) for x in layers}
-    flat = FlatLayout(path=path, cell=cell, grid_um=grid_um)
-    with _QuietNative():
-        polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
-        labels = top.get_labels(apply_repetitions=True, depth=None)
-    for poly in polys:
-        key = (int(poly.layer), int(poly.datatype))
-        if wanted is not None and key not in wanted:
-            continue
-        pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
-        if len(pts) >= 3:
-            flat.polygons.setdefault(key, []).append(pts)
-    for lab in labels:
-        x, y = (round(v / grid_um) * grid_um for v in lab.origin)
-        flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
-    return flat
+    return flatten_cell(open_layout(path), cell, layers)

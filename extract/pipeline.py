@@ -20,10 +20,10 @@ from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.connectivity import Conductors, connect, name_nets
 from extract.devices import find_channels
 from extract.geometry import merge_parts, polygons_from_arrays, representative_points, subtract_overlapping
-from extract.layout import FlatLayout, read_layout
+from extract.layout import FlatLayout, LayoutFile, flatten_cell, read_layout
 from extract.tech import Tech
 
-__all__ = ["extract_layout", "extract_flat"]
+__all__ = ["extract_layout", "extract_cell", "extract_flat", "tech_layers"]
 
 
 def extract_layout(path: str, tech: Tech, cell: str | None = None) -> Circuit:
@@ -46,10 +46,19 @@ def extract_layout(path: str, tech: Tech, cell: str | None = None) -> Circuit:
     InputError
         For every problem with the layout file (see :func:`read_layout`).
     """
+    return extract_flat(read_layout(path, cell, layers=tech_layers(tech)), tech)
+
+
+def tech_layers(tech: Tech) -> set[tuple[int, int]]:
+    """The ``(layer, datatype)`` pairs the tech file uses (shapes and text)."""
     wanted = {layer.gds for layer in tech.layers.values()}
-    wanted |= {pair for layer in tech.layers.values() for pair in layer.labels}
-    flat = read_layout(path, cell, layers=wanted)
-    return extract_flat(flat, tech)
+    return wanted | {pair for layer in tech.layers.values() for pair in layer.labels}
+
+
+def extract_cell(layout: LayoutFile, tech: Tech, cell: str | None = None) -> Circuit:
+    """Like :func:`extract_layout`, from a file already opened with
+    :func:`extract.layout.open_layout` (for many cells of one library)."""
+    return extract_flat(flatten_cell(layout, cell, layers=tech_layers(tech)), tech)
 
 
 def _layer_shapes(flat: FlatLayout, tech: Tech):

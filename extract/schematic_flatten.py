@@ -28,7 +28,7 @@ Multiplier and fingers
 Junction estimates (``[prelayout]``)
     On a contacted node a missing AD (AS) is ``W × contacted_length`` and
     a missing PD (PS) is ``2·W + 2·contacted_length`` (field edges
-    ``W + 2·length`` plus the gate edge ``W``), W the whole device width
+    ``W + 2·contacted_length`` plus the gate edge ``W``), W the whole device width
     before the NF split.  An internal stack node is one strip of
     diffusion ``W × uncontacted_length`` between two gates, shared by the
     two series devices, so each of its two terminals carries half of it:

@@ -54,6 +54,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--constraints", metavar="FILE", help="input constraints (TOML)")
     p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
     p.add_argument("--html", metavar="OUT", help="write an HTML report")
+    p.add_argument("--all-cells", action="store_true", help="check every cell of the library LAYOUT")
+    p.add_argument("--jobs", type=int, default=1, metavar="N", help="with --all-cells: cells in N parallel processes")
 
     p = sub.add_parser("compare", help="pre-layout (schematic) against post-layout (layout)")
     _layout_args(p)

@@ -81,6 +81,10 @@ def run_extract(args) -> int:
 
 
 def run_check(args) -> int:
+    if args.all_cells:
+        from analyze.library import run_library
+
+        return run_library(args)
     from analyze.checking import check_cell
 
     return check_cell(args)

@@ -16,7 +16,7 @@ def pytest_runtest_makereport(item, call):
     if (
         report.skipped
         and os.environ.get("CI", "").lower() == "true"
-        and item.get_closest_marker("ngspice") is not None
+        and (item.get_closest_marker("ngspice") is not None or item.get_closest_marker("browser") is not None)
     ):
         report.outcome = "failed"
-        report.longrepr = "ngspice test skipped under CI=true (ngspice must be installed and run)"
+        report.longrepr = "ngspice/browser test skipped under CI=true (the tool must be installed and run)"

@@ -13,7 +13,8 @@ import html
 from analyze.svg_layout import MARK_STYLES, MAX_SHAPES, cap_ramp, layout_svg
 from extract.outformat import tool_version
 
-__all__ = ["page", "table", "props_table", "status_html", "fmt_v", "fmt_loc", "layout_figure", "pattern_text", "CSS"]
+__all__ = ["page", "table", "props_table", "flags_table", "status_html", "fmt_v", "fmt_loc", "layout_figure",
+           "pattern_text", "stage_kind", "fix_action", "CSS"]
 
 CSS = """
 body{font-family:sans-serif;margin:1.5em auto;max-width:72em;padding:0 1em;color:#111;line-height:1.35}
@@ -28,12 +29,35 @@ table.props th{width:13em}
 .note{font-style:italic}.verdict{font-size:1.1em;font-weight:bold}
 figure{margin:.5em 0 1.2em 0}figcaption{font-size:.9em;margin-top:.3em}
 svg.layout{width:100%;height:auto;max-height:75vh;border:1px solid #bbb;background:#fff}
-svg.patterns,svg.bars{width:100%;max-width:56em;height:auto}
+svg.patterns,svg.bars{width:100%;max-width:50rem;height:auto}
 .legend{display:flex;flex-wrap:wrap;gap:.3em 1.2em;font-size:.9em;margin-top:.4em;align-items:center}
 .legend span.sw{display:inline-block;width:1.6em;height:1em;border:1px solid #555;vertical-align:middle;margin-right:.3em}
 code{font-size:.95em}
 @media print{svg.layout{max-height:none}h2{break-after:avoid}section.stage{break-inside:avoid-page}}
 """
+
+
+def stage_kind(st) -> str:
+    """``"n-type (precharged high)"`` or ``"p-type (predischarged low)"``."""
+    return "n-type (precharged high)" if st.polarity == "n" else "p-type (predischarged low)"
+
+
+def fix_action(st) -> str:
+    """The device a flagged node of this stage needs: precharge or predischarge."""
+    return "precharge" if st.polarity == "n" else "predischarge"
+
+
+def flags_table(result) -> str:
+    """The nodes to fix of a :class:`analyze.analysis.StageResult`, or its
+    note, or ``""``."""
+    if result.flags:
+        return (f"<h3>Nodes that need a {fix_action(result.stage)} device</h3>"
+                + table(["node", "action", "location", "between", "worst v_final after"],
+                        [[f.node, f.action, fmt_loc(f.location_um), " and ".join(f.between) or "–",
+                          fmt_v(f.v_final_after)] for f in result.flags], cls="flags"))
+    if result.flag_note:
+        return f'<p class="note">{html.escape(result.flag_note)}</p>'
+    return ""
 
 
 def fmt_v(x) -> str:

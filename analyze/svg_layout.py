@@ -33,7 +33,7 @@ __all__ = ["Mark", "MARK_STYLES", "cap_ramp", "cap_bins", "bin_of", "layout_svg"
 #: Above this many shapes only the nets asked for (``keep``) are drawn.
 MAX_SHAPES = 20_000
 #: At most this many marked nets are labelled (all are outlined).
-MAX_LABELS = 40
+MAX_LABELS = 30
 
 #: Outline styles of marked nets: mark kind -> (stroke width px, dash array, legend text).
 MARK_STYLES = {
@@ -290,7 +290,8 @@ def layout_svg(circuit: Circuit, tech=None, marks=(), keep=(), max_shapes: int =
     marked: dict[str, Mark] = {}
     for m in marks:
         marked.setdefault(m.net, m)
-    labels_svg, vb = _labels(circuit, [m for m in marked.values() if m.net in names], box)
+    labels_svg, vb, label_note = _labels(circuit, [m for m in marked.values() if m.net in names], box)
+    note = " ".join(t for t in (note, label_note) if t)
 
     def order(n):
         return (max(rank[lay] for lay, _ in circuit.shapes[n]), n)
@@ -335,12 +336,15 @@ def layout_svg(circuit: Circuit, tech=None, marks=(), keep=(), max_shapes: int =
     return "\n".join(parts), edges, note
 
 
-def _labels(circuit: Circuit, marks: list[Mark], box: tuple[int, int, int, int]) -> tuple[str, list[int]]:
+def _labels(circuit: Circuit, marks: list[Mark], box: tuple[int, int, int, int]) -> tuple[str, list[int], str]:
     """Numbered badges at the marked points and a key right of the layout;
-    returns the SVG and the viewBox that makes room for the key.
+    returns the SVG, the viewBox that makes room for the key, and a note
+    when no badges are drawn.
 
     Badges are numbered in reading order of their points (top to bottom,
-    left to right); at most :data:`MAX_LABELS` are written.
+    left to right); at most :data:`MAX_LABELS` are written, and none when
+    two points are too close for badges of a readable size (all pairs of
+    at most :data:`MAX_LABELS` points are compared).
     """
     bx0, by0, bx1, by1 = box
     items = []
@@ -351,26 +355,31 @@ def _labels(circuit: Circuit, marks: list[Mark], box: tuple[int, int, int, int])
     items = sorted(items, key=lambda t: (t[0], t[1], t[2].net))[:MAX_LABELS]
     width, height = bx1 - bx0, by1 - by0
     if not items:
-        return "", [bx0, by0, width, height]
+        return "", [bx0, by0, width, height], ""
     chars = min(48, max(len(t[2].text) for t in items)) + 4
     size = max(1, round(max(width / (72 - 0.6 * chars), height / 50)))
+    pts = np.array([(x, y) for y, x, _ in items], dtype=float)
+    gaps = np.hypot(*(pts[:, None, :] - pts[None, :, :]).transpose(2, 0, 1)) + np.eye(len(pts)) * 1e18
+    r = round(min(0.7 * size, 0.5 * float(gaps.min())))
+    if r < 0.35 * size:
+        return "", [bx0, by0, width, height], "Marked nodes are too close at this scale to be numbered; see the outlines."
+    num = round(min(0.85 * size, 1.2 * r))
     col = bx1 + size
     step = round(1.5 * size)
     bottom = max(by1, by0 + size + step * len(items))
     vb = [bx0, by0, width + round(size * (0.62 * chars + 2)), bottom - by0]
-    r = round(0.7 * size)
     out = [f'<g class="labels" font-family="sans-serif" font-size="{size}">']
     for k, (y, x, m) in enumerate(items, start=1):
         text = m.text if len(m.text) <= 48 else m.text[:47] + "…"
         ty = by0 + size + (k - 1) * step
         badge = (f'<circle cx="{{x}}" cy="{{y}}" r="{r}" fill="#ffffff" stroke="#000000" stroke-width="{max(1, r // 6)}"/>'
-                 f'<text x="{{x}}" y="{{ty}}" text-anchor="middle" font-size="{round(0.85 * size)}" '
+                 f'<text x="{{x}}" y="{{ty}}" text-anchor="middle" font-size="{num}" '
                  f'font-weight="bold">{k}</text>')
         out.append(
             f'<g class="label" data-label-for="{html.escape(m.net)}">'
-            + badge.format(x=x, y=y, ty=y + round(0.3 * size))
-            + badge.format(x=col + r, y=ty - round(0.3 * size), ty=ty)
+            + badge.format(x=x, y=y, ty=y + round(0.35 * num))
+            + badge.format(x=col + r, y=ty - round(0.35 * num), ty=ty)
             + f'<text x="{col + 2 * r + size // 3}" y="{ty}">{html.escape(text)}</text></g>'
         )
     out.append("</g>")
-    return "".join(out), vb
+    return "".join(out), vb, ""

@@ -200,10 +200,12 @@ def paired_bars_svg(rows, *, unit: str, axis_max: float | None = None, pattern_i
         out.append(f'<line x1="{left + 340}" x2="{left + 340}" y1="2" y2="16" stroke="#000000" stroke-width="2"/>'
                    f'<text x="{left + 346}" y="13">{html.escape(mark_text)}</text>')
     base = top + row_h * len(rows)
-    for t in ticks:
+    for k, t in enumerate(ticks):
+        text = f"{t:g} {html.escape(unit)}" if k == len(ticks) - 1 else f"{t:g}"
+        anchor = "start" if k == len(ticks) - 1 else "middle"
+        xt = x(t) - (4 if k == len(ticks) - 1 else 0)
         out.append(f'<line x1="{_t(x(t))}" x2="{_t(x(t))}" y1="{top - 4}" y2="{base}" stroke="#dddddd"/>'
-                   f'<text x="{_t(x(t))}" y="{base + 14}" text-anchor="middle">{t:g}</text>')
-    out.append(f'<text x="{w - right + 6}" y="{base + 14}">{html.escape(unit)}</text>')
+                   f'<text x="{_t(xt)}" y="{base + 14}" text-anchor="{anchor}">{text}</text>')
     for i, r in enumerate(rows):
         y0 = top + i * row_h
         label = html.escape(str(r["label"]))

@@ -20,8 +20,10 @@ circuits edited by hand (renamed nets, removed wiring).
 from __future__ import annotations
 
 import dataclasses
+import html
 import os
 import re
+import types
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -29,7 +31,8 @@ import pytest
 from shapely.geometry import box
 
 from analyze.checking import analyse_circuit
-from analyze.html_report import Comparison, StagePair, check_html, compare_html
+from analyze.comparison import StageComparison, compare_circuits
+from analyze.html_report import check_html, compare_html
 from analyze.svg_layout import cap_bins, cap_ramp, layout_svg
 from analyze.svg_plots import pattern_plot_svg
 from extract.circuit import CapParts, Circuit, Device, Net
@@ -409,14 +412,16 @@ def _renamed(c: Circuit, names: dict[str, str], strip_wire: bool = False, shapes
     return Circuit(c.cell, dict(sorted(nets.items())), devs, list(c.findings), c.source, shp)
 
 
-def _comparison(checked, tech):
-    post, _, _, post_res = checked["DYN_NAND3"]
+def _comparison(checked, tech, guard=None):
+    """A comparison of DYN_NAND3 against a hand-made schematic: the same
+    circuit with schematic-style names and no wiring capacitance or geometry."""
+    post, _, _, _ = checked["DYN_NAND3"]
+    t = tech if guard is None else dataclasses.replace(tech, guard=guard)
     to_s = {n: n.lower() + "_s" for n in post.nets if n not in ("VDD", "VSS", "CLK")}
     pre = _renamed(post, to_s, strip_wire=True, shapes=False)
     pre.source = "nand3.sp"
-    _, pre_res = analyse_circuit(pre, tech)
-    pairs = [StagePair(post_res[0].stage.dynamic_node, pre_res[0], post_res[0])]
-    return Comparison(pre, post, tech, {n: to_s.get(n, n) for n in post.nets}, pairs, ["hand-made schematic"])
+    match = types.SimpleNamespace(net_map={n: to_s.get(n, n) for n in post.nets}, notes=["hand-made schematic"])
+    return compare_circuits(pre, post, match, t)
 
 
 def test_compare_page(checked, tech):
@@ -424,32 +429,55 @@ def test_compare_page(checked, tech):
     # capacitance, so post-layout nodes carry at least as much capacitance as
     # pre-layout ones, and the droop increase is post droop - pre droop.
     cmp = _comparison(checked, tech)
-    sp = cmp.stages[0]
+    sc = cmp.stages[0]
     text = compare_html(cmp)
     page = Page(text)
-    inc = sp.post.worst_case.droop_v - sp.pre.worst_case.droop_v
+    inc = sc.post.worst_case.droop_v - sc.pre.worst_case.droop_v
     assert f"{inc:+.3f} V" in text
     charts = re.findall(r'<svg class="bars".*?</svg>', text, re.S)
     assert len(charts) == 2  # v_final per stage, node caps of the one stage
     assert charts[0].count('class="bar pre"') == 1 and charts[0].count('class="bar post"') == 1
-    st = sp.post.stage
+    assert charts[0].count('class="mark"') == 1  # the threshold tick
+    st = sc.post.stage
     assert charts[1].count('class="bar post"') == 1 + len(st.internal_nodes)
     nets = re.search(r'<table class="nets">.*?</table>', text, re.S).group(0)
-    assert nets.count("<tr>") == 1 + len(cmp.post.nets)
+    assert nets.count("<tr>") == 1 + len(cmp.nets) == 1 + len(cmp.post.nets)
     for name in [st.dynamic_node, *st.internal_nodes]:
         pre_c = cmp.pre.nets[cmp.net_map[name]].cap_ff
         post_c = cmp.post.nets[name].cap_ff
         assert post_c >= pre_c
         assert f"<td>{name}</td><td>{cmp.net_map[name]}</td>" in nets
+    # hand reasoning: only wiring was removed, so "wire" is the part that grew on X
+    row = re.search(rf"<tr><td>{st.dynamic_node}</td>.*?</tr>", nets).group(0)
+    assert "<td>wire</td>" in row
+    attribution = re.search(r'<table class="attribution">.*?</table>', text, re.S).group(0)
+    assert attribution.count("<tr>") == 1 + len(sc.attribution)
     assert sorted(a["data-net"] for a in _net_groups(page)) == sorted(n for n, s in cmp.post.shapes.items() if s)
     assert "hand-made schematic" in text and "nand3.sp" in text
+
+
+def test_compare_failing_layout_shows_fixes(checked, tech):
+    # hand reasoning: with a guard of 0.65 V the layout (margin 0.639 V in the
+    # demo process) fails; its flags appear in the stage section and are
+    # outlined in the drawing.
+    cmp = _comparison(checked, tech, guard=0.65)
+    sc = cmp.stages[0]
+    assert sc.post.status == "fail"
+    text = compare_html(cmp)
+    assert "✗ FAIL" in text
+    if sc.post.flags:
+        assert '<table class="flags">' in text
+        groups = {a["data-net"]: a for a in _net_groups(Page(text))}
+        assert all("mark-flag" in groups[f.node]["class"].split() for f in sc.post.flags)
+    else:
+        assert sc.post.flag_note and html.escape(sc.post.flag_note) in text
 
 
 def test_compare_missing_stage(checked, tech):
     # hand reasoning: a stage only the layout has shows its post numbers and
     # a dash for pre, without failing.
     cmp = _comparison(checked, tech)
-    cmp.stages = [StagePair(cmp.stages[0].dynamic_node, None, cmp.stages[0].post)]
+    cmp.stages = [StageComparison(cmp.stages[0].dynamic_node, None, cmp.stages[0].post)]
     text = compare_html(cmp)
     assert "no pre-layout value" in text and "no such stage" in text
 
@@ -502,3 +530,33 @@ def test_report_in_chromium(checked, tmp_path):
     assert tuple(int(ramp[-1][i:i + 2], 16) for i in (1, 3, 5)) in colours
     assert (0x1D, 0x1D, 0x1D) in colours  # the FAIL cell
     assert os.path.getsize(png) > 10_000
+
+
+# ------------------------------------------------------------- edge cases
+
+
+def test_cell_without_stages(gds, tech, tmp_path):
+    # hand reasoning: a static NAND2 has no clocked precharge device, so no
+    # stage; the page says so, draws the layout and has no stage section.
+    path = write_library(str(tmp_path / "static.gds"), ["STATIC_NAND2"])
+    c = extract_layout(path, tech, "STATIC_NAND2")
+    rec, res = analyse_circuit(c, tech)
+    assert res == []
+    text = check_html(c, tech, rec, res)
+    assert "No dynamic stage found" in text and '<section class="stage"' not in text
+    assert len(_net_groups(Page(text))) == len([n for n, s in c.shapes.items() if s])
+
+
+def test_netlist_circuit_and_no_counted_pattern(checked):
+    # hand-made data: the circuit without geometry (as read from a netlist)
+    # and a result whose every pattern discharges the node (worst_case None,
+    # 0 counted patterns): the page says there is nothing to draw and no
+    # counted pattern, and has no pattern plot.
+    from analyze.analysis import StageResult
+
+    c, t, rec, res = checked["DYN_NAND3"]
+    bare = _renamed(c, {}, shapes=False)
+    r = StageResult(res[0].stage, threshold_v=0.9, margin_v=0.9, status="pass", worst_case=None, counted_patterns=0)
+    text = check_html(bare, t, rec, [r])
+    assert "No layout geometry to draw" in text and "No counted pattern" in text
+    assert '<svg class="patterns"' not in text and not _net_groups(Page(text))

@@ -166,7 +166,7 @@ def test_magnified_instance_scales(tmp_path, tech):
     top.add(gdstk.Reference(child, (0, 0), magnification=2))
     c = extract_layout(write(tmp_path, "m.gds", top, child), tech, "TOP")
     # Hand scaling: lengths ×2, areas ×4.
-    assert [(d.w_um, d.l_um) for d in c.devices] == pytest.approx([(2.0, 0.36), (2.0, 0.36)])
+    assert [v for d in c.devices for v in (d.w_um, d.l_um)] == pytest.approx([2.0, 0.36, 2.0, 0.36])
     j0, j = flat.nets["net1"].junctions["nmos"], c.nets["net1"].junctions["nmos"]
     assert j.area_um2 == pytest.approx(4 * j0.area_um2)
     assert j.field_perimeter_um == pytest.approx(2 * j0.field_perimeter_um)

@@ -433,12 +433,15 @@ def test_fix_holds_in_ngspice():
 # charge) gives 1.378 V and 1.484 V.  The analysis puts X at V_lim (its
 # regime "c", which assumes the precharged node sits beside X and the
 # discharged nodes behind X), 1.131 V in both: 0.25–0.35 V pessimistic.
-@pytest.mark.ngspice
+# No ngspice mark here (require_ngspice is called inside): the CI hook in
+# tests/conftest.py counts an xfail outcome as a skipped ngspice test and
+# fails it under CI=true.
 @pytest.mark.xfail(strict=True, reason="regime c puts X at the pass limit when a precharged node lies "
                    "between X and a discharged node (X-A-N1-B-N2, N1 precharged); ngspice keeps X "
                    "well above it: v_final (and flags' v_final_after) 0.25-0.35 V pessimistic")
 @pytest.mark.parametrize("case", ["flagged_fix", "drawn_fix"])
 def test_precharged_middle_node_against_ngspice(case):
+    require_ngspice()
     inputs = {"A": 1, "B": 1, "C": 0}
     if case == "flagged_fix":
         pre, post, cmp = compared("DYN_NAND3_LONG")

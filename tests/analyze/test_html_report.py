@@ -560,3 +560,20 @@ def test_netlist_circuit_and_no_counted_pattern(checked):
     text = check_html(bare, t, rec, [r])
     assert "No layout geometry to draw" in text and "No counted pattern" in text
     assert '<svg class="patterns"' not in text and not _net_groups(Page(text))
+
+
+def test_compare_hostile_names_are_escaped(checked, tech):
+    # html.parser: markup in layout and schematic net names comes back as
+    # text, never as elements.
+    post, _, _, _ = checked["DYN_NAND3"]
+    evil = {"X": "<b>X</b>", "net2": "n&<i>"}
+    post = _renamed(post, evil)
+    pre = _renamed(post, {v: v + "<u>" for v in evil.values()}, shapes=False)
+    match = types.SimpleNamespace(net_map={n: n + "<u>" if n in evil.values() else n for n in post.nets},
+                                  notes=["<script>x</script>"])
+    cmp = compare_circuits(pre, post, match, tech)
+    assert cmp.stages and cmp.stages[0].dynamic_node == "<b>X</b>"
+    page = Page(compare_html(cmp))
+    for tag in ("b", "i", "u", "script"):
+        assert not page.find(tag)
+    assert "<b>X</b>" in {a["data-net"] for a in _net_groups(page)}

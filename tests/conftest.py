@@ -15,6 +15,7 @@ def pytest_runtest_makereport(item, call):
     report = outcome.get_result()
     if (
         report.skipped
+        and not hasattr(report, "wasxfail")
         and os.environ.get("CI", "").lower() == "true"
         and (item.get_closest_marker("ngspice") is not None or item.get_closest_marker("browser") is not None)
     ):

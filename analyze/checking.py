@@ -75,7 +75,7 @@ def check_cell(args) -> int:
     if getattr(args, "html", None):
         from analyze.html_report import check_html
 
-        html = check_html(circuit, tech, recognition, results)
+        html = check_html(circuit, tech, recognition, results, constraints=constraints)
     if args.json != "-":
         sys.stdout.write(text)
     emit(args.json, dumps(report))

@@ -221,10 +221,17 @@ class Circuit:
     shapes: dict[str, list[tuple[str, object]]] = field(default_factory=dict)
 
     def device(self, name: str) -> Device:
-        for d in self.devices:
-            if d.name == name:
-                return d
-        raise KeyError(name)
+        """The device called ``name`` (KeyError if none); O(1) after the
+        first call, the index rebuilt when the device list changed."""
+        index = self.__dict__.get("_device_index")
+        d = None if index is None else index.get(name)
+        if d is None or d.name != name or len(index) != len(self.devices):
+            index = {dev.name: dev for dev in self.devices}
+            self.__dict__["_device_index"] = index
+            d = index.get(name)
+        if d is None:
+            raise KeyError(name)
+        return d
 
     def devices_on(self, net: str) -> list[Device]:
         """Devices with a channel terminal (drain or source) on ``net``."""

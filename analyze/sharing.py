@@ -278,21 +278,26 @@ class SharingModel:
         """Real voltage of a normalised one."""
         return u if self.stage.polarity == "n" else self.vdd - u
 
+    def _component_result(self, node_mask: int) -> tuple:
+        """(shared names, v_final, v_final_linear, droop, regime) of a
+        component, real voltages; cached per component and precharge set."""
+        key = ("outcome", node_mask, self.precharged)
+        hit = self._cache.get(key)
+        if hit is None:
+            red = self.redistribute(*self.split(node_mask))
+            idx = [i for i in range(len(self.nodes)) if (node_mask >> i) & 1]
+            starts = [self.vdd if (i == 0 or (self.precharged >> i) & 1) else 0.0 for i in idx]
+            u_lin = linear_final_voltage(self.zero_bias[idx], starts)
+            v = self.to_volts(red.v_final)
+            hit = (tuple(self.nodes[i] for i in idx[1:]), v, self.to_volts(u_lin),
+                   abs(self.to_volts(self.vdd) - v), red.regime)
+            self._cache[key] = hit
+        return hit
+
     def outcome(self, values, node_mask: int) -> WorstCase:
         """The :class:`WorstCase` record of a counted pattern."""
-        red = self.redistribute(*self.split(node_mask))
-        idx = [i for i in range(len(self.nodes)) if (node_mask >> i) & 1]
-        starts = [self.vdd if (i == 0 or (self.precharged >> i) & 1) else 0.0 for i in idx]
-        u_lin = linear_final_voltage(self.zero_bias[idx], starts)
-        v = self.to_volts(red.v_final)
-        return WorstCase(
-            inputs={n: int(values[i]) for i, n in enumerate(self.inputs)},
-            shared_nodes=[self.nodes[i] for i in idx[1:]],
-            v_final=v,
-            v_final_linear=self.to_volts(u_lin),
-            droop_v=abs(self.to_volts(self.vdd) - v),
-            regime=red.regime,
-        )
+        shared, v, v_lin, droop, regime = self._component_result(node_mask)
+        return WorstCase(dict(zip(self.inputs, map(int, values))), list(shared), v, v_lin, droop, regime)
 
 
 def build_model(circuit: Circuit, stage: Stage, tech: Tech, precharged=frozenset()) -> SharingModel:

@@ -28,7 +28,7 @@ from extract.circuit import Circuit
 from extract.tech import Tech
 from analyze.stage import Stage
 
-__all__ = ["model_cards", "transient_deck"]
+__all__ = ["model_cards", "spice_names", "transient_deck"]
 
 
 def model_cards(tech: Tech) -> str:
@@ -49,6 +49,20 @@ def model_cards(tech: Tech) -> str:
     return "\n".join(lines)
 
 
+def spice_names(circuit: Circuit) -> dict[str, str]:
+    """A SPICE node name per net.  SPICE folds case, so nets whose names
+    differ only in case (``A0`` and ``a0``), or that are not plain
+    identifiers, get numbered names instead."""
+    folded: dict[str, int] = {}
+    for n in circuit.nets:
+        folded[n.lower()] = folded.get(n.lower(), 0) + 1
+    out = {}
+    for k, n in enumerate(circuit.nets):
+        plain = n.replace("_", "").isalnum() and n.lower() != "0" and folded[n.lower()] == 1
+        out[n] = n if plain else f"net{k}_"
+    return out
+
+
 def _rail_nets(circuit: Circuit) -> tuple[str, str]:
     power = [n.name for n in circuit.nets.values() if n.role == "power"]
     ground = [n.name for n in circuit.nets.values() if n.role == "ground"]
@@ -64,6 +78,7 @@ def transient_deck(
     precharged=(),
     probes=(),
     t_stop_ns: float = 80.0,
+    t_step_ns: float = 0.005,
 ) -> str:
     """A deck that prints ``vx = <v(X) at t_stop>`` and ``v_<net> = ...``
     for each net of ``probes``.
@@ -79,6 +94,8 @@ def transient_deck(
         Further nets whose final voltage to print.
     t_stop_ns : float
         Simulated time; ``v(X)`` is read at its end.
+    t_step_ns : float
+        ``.tran`` step (also the largest internal step ngspice takes).
     """
     vdd = tech.vdd
     n_type = stage.polarity == "n"
@@ -100,9 +117,10 @@ def transient_deck(
         starts[rec.output] = low
     starts.update(held)
 
+    node = spice_names(circuit)
     lines = ["* charge-sharing reference", model_cards(tech)]
     for k, (net, v) in enumerate(sorted(held.items())):
-        lines.append(f"Vh{k} {net} 0 DC {v:.9g}")
+        lines.append(f"Vh{k} {node[net]} 0 DC {v:.9g}")
     devices = {d.name: d for d in circuit.devices}
     extra = {name: {} for name in devices}
     dummies = []
@@ -123,25 +141,27 @@ def transient_deck(
         body = ground if d.type == "nmos" else power
         model = "nmod" if d.type == "nmos" else "pmod"
         lines.append(
-            f"M{d.name} {d.drain} {d.gate} {d.source} {body} {model} w={d.w_um:.6g}u l={d.l_um:.6g}u "
+            f"M{d.name} {node[d.drain]} {node[d.gate]} {node[d.source]} {node[body]} {model} "
+            f"w={d.w_um:.6g}u l={d.l_um:.6g}u "
             f"ad={j.get('ad', 0):.6g}p as={j.get('as', 0):.6g}p "
             f"pd={j.get('pd', 0):.6g}u ps={j.get('ps', 0):.6g}u"
         )
     for k, (net, t, area, perim) in enumerate(dummies):
         body, off = (ground, ground) if t == "nmos" else (power, power)
         model = "nmod" if t == "nmos" else "pmod"
-        lines.append(f"Mjunc{k} {net} {off} {net} {body} {model} w=1u l=1u ad={area:.6g}p pd={perim:.6g}u")
+        lines.append(f"Mjunc{k} {node[net]} {node[off]} {node[net]} {node[body]} {model} w=1u l=1u "
+                     f"ad={area:.6g}p pd={perim:.6g}u")
     for k, net in enumerate(circuit.nets.values()):
         if net.cap.linear > 0:
-            lines.append(f"Clin{k} {net.name} 0 {net.cap.linear:.9g}f")
-    lines.append(".ic " + " ".join(f"v({n})={v:.9g}" for n, v in sorted(starts.items())))
+            lines.append(f"Clin{k} {node[net.name]} 0 {net.cap.linear:.9g}f")
+    lines.append(".ic " + " ".join(f"v({node[n]})={v:.9g}" for n, v in sorted(starts.items())))
     lines.append(".options reltol=1e-5 abstol=1e-16 vntol=1e-8 method=gear")
-    lines.append(f".tran 0.005n {t_stop_ns:g}n uic")
+    lines.append(f".tran {t_step_ns:g}n {t_stop_ns:g}n uic")
     lines.append(".control")
     lines.append("run")
-    lines.append(f"meas tran vx find v({stage.dynamic_node}) at={t_stop_ns:g}n")
+    lines.append(f"meas tran vx find v({node[stage.dynamic_node]}) at={t_stop_ns:g}n")
     for net in probes:
-        lines.append(f"meas tran v_{net} find v({net}) at={t_stop_ns:g}n")
+        lines.append(f"meas tran v_{net} find v({node[net]}) at={t_stop_ns:g}n")
     lines.append(".endc")
     lines.append(".end")
     return "\n".join(lines) + "\n"

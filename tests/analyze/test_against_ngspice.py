@@ -118,6 +118,22 @@ def test_precharged_node_holds_x_at_pass_limit(polarity):
     assert wc.v_final == pytest.approx(lim if polarity == "n" else TECH.vdd - lim, abs=1e-9)
 
 
+@pytest.mark.parametrize("polarity", ["n", "p"])
+def test_precharged_node_rule_is_a_bound(polarity):
+    # X - A - n1 - B - n2 - C - FOOT with n2 precharged, A = B = 1: n2 feeds
+    # n1 directly, not through X, so it gives up charge before X reaches the
+    # pass limit.  The analysis lets X pay first (it cannot know the device
+    # strengths that split the charge), so the simulator ends with less droop.
+    require_ngspice()
+    caps = _nand3_caps(10.0, 3.0) if polarity == "n" else _flip(_nand3_caps(10.0, 3.0))
+    pattern = {"A": 1, "B": 1, "C": 0} if polarity == "n" else {"A": 0, "B": 0, "C": 1}
+    circuit, stage = domino(TECH, NAND3, caps, polarity=polarity, secondary=("n2",))
+    wc = evaluate_pattern(circuit, stage, TECH, pattern)
+    out = run_deck(transient_deck(circuit, stage, TECH, pattern))
+    droop_sim = abs(out["vx"] - (TECH.vdd if polarity == "n" else 0.0))
+    assert droop_sim <= wc.droop_v + 0.001
+
+
 def test_reference_junction_discharge():
     # Self-check of the reference (REFERENCE-SIMULATION note): one n+
     # junction discharged by a constant current.  The time between two

@@ -139,7 +139,7 @@ def iter_counted(model: SharingModel, choices: list[Choice]) -> Iterator[tuple[t
             yield from walk(on | mask)
             prefix.pop()
 
-    yield from walk(0)
+    yield from walk(model.always_on)
 
 
 def _partition_key(model: SharingModel, on: int, boundary: list[int]) -> tuple[int, ...]:
@@ -221,4 +221,4 @@ def count_counted(model: SharingModel, choices: list[Choice]) -> int:
             memo[key] = sum(f(on | mask, rest) for mask in choices[pick].on)
         return mult * memo[key]
 
-    return f(0, tuple(range(len(choices))))
+    return f(model.always_on, tuple(range(len(choices))))

@@ -88,11 +88,14 @@ class SharingModel:
     dev_a, dev_b : tuple of int
         Terminal nodes of each device (:data:`RAIL` for rail / footer node).
     dev_input : tuple of int
-        Index into ``inputs`` of each device's gate.
+        Index into ``inputs`` of each device's gate; -1 for a device whose
+        gate is held on (a supply or the clock).
     dev_on : tuple of int
         Gate value that makes each device conduct (1 nmos, 0 pmos).
     v_lim : float
         Pass limit, normalised, V.
+    always_on : int
+        Bitmask of the devices whose gate is held on.
     """
 
     stage: Stage
@@ -108,6 +111,7 @@ class SharingModel:
     dev_input: tuple[int, ...]
     dev_on: tuple[int, ...]
     v_lim: float
+    always_on: int = 0
     _cache: dict = field(default_factory=dict, repr=False)
 
     def __post_init__(self):
@@ -158,9 +162,9 @@ class SharingModel:
 
     def conducting(self, values) -> int:
         """Bitmask of devices that conduct for input ``values`` (in ``inputs`` order)."""
-        on = 0
+        on = self.always_on
         for d, (i, v) in enumerate(zip(self.dev_input, self.dev_on)):
-            if values[i] == v:
+            if i >= 0 and values[i] == v:
                 on |= 1 << d
         return on
 
@@ -215,7 +219,11 @@ class SharingModel:
         """
         values = np.asarray(values)
         n = len(self.nodes)
-        cond = values[:, list(self.dev_input)] == np.asarray(self.dev_on)
+        idx = np.array(self.dev_input, dtype=int)
+        cond = np.ones((values.shape[0], len(idx)), dtype=bool)
+        var = idx >= 0
+        if var.any():
+            cond[:, var] = values[:, idx[var]] == np.asarray(self.dev_on)[var]
         a = np.array([n if x == RAIL else x for x in self.dev_a], dtype=int)
         b = np.array([n if x == RAIL else x for x in self.dev_b], dtype=int)
         inc = np.zeros((len(a), n + 1), dtype=np.float32)
@@ -323,17 +331,40 @@ def build_model(circuit: Circuit, stage: Stage, tech: Tech, precharged=frozenset
 
     Notes
     -----
-    A device conducts when its gate is 1 (nmos) or 0 (pmos).  The pass
+    A device conducts when its gate is 1 (nmos) or 0 (pmos).  A gate on a
+    supply or on the clock is held (supply value; the clock at its
+    evaluation level) and is no input; a device it holds off is left out.
+    Every net of the rail's role (ground for n-type) is the rail.  A device
+    with a terminal on the other supply could only restore the dynamic
+    node; it is left out, which errs on the safe side.  The pass
     limit is that of the stage's evaluation type (nmos for ``"n"``, pmos
     for ``"p"``, :func:`analyze.threshold.pass_limit`).  A net missing from
     ``circuit.nets`` has no capacitance.  Cost O(devices + nets).
     """
-    fixed = {stage.rail} | ({stage.footer_node} if stage.footer_node else set())
+    n_type = stage.polarity == "n"
+
+    def role(net: str) -> str:
+        return circuit.nets[net].role if net in circuit.nets else tech.role_of(net)
+
+    rail_role, supply_role = ("ground", "power") if n_type else ("power", "ground")
     devs = [circuit.device(name) for name in stage.evaluation]
+    # Devices to the other supply would only restore the node: left out (conservative).
+    devs = [d for d in devs if supply_role not in (role(d.drain), role(d.source))]
+    fixed = {stage.rail} | ({stage.footer_node} if stage.footer_node else set())
+    fixed |= {t for d in devs for t in (d.drain, d.source) if role(t) == rail_role}
+    held = {}  # gate net -> value during evaluation
+    for d in devs:
+        r = role(d.gate)
+        if d.gate == stage.clock or r == "clock":
+            held[d.gate] = 1 if n_type else 0
+        elif r in ("power", "ground"):
+            held[d.gate] = 1 if r == "power" else 0
+    conducts = {d.name: held[d.gate] == (1 if d.type == "nmos" else 0) for d in devs if d.gate in held}
+    devs = [d for d in devs if conducts.get(d.name, True)]
     others = sorted({t for d in devs for t in (d.drain, d.source)} - fixed - {stage.dynamic_node})
     nodes = (stage.dynamic_node, *others)
     index = {n: i for i, n in enumerate(nodes)}
-    inputs = tuple(sorted(set(stage.inputs) | {d.gate for d in devs}))
+    inputs = tuple(sorted((set(stage.inputs) | {d.gate for d in devs}) - set(held)))
     mirror = stage.polarity == "p"
     charges = []
     for n in nodes:
@@ -355,8 +386,9 @@ def build_model(circuit: Circuit, stage: Stage, tech: Tech, precharged=frozenset
         devices=tuple(d.name for d in devs),
         dev_a=tuple(RAIL if d.drain in fixed else index[d.drain] for d in devs),
         dev_b=tuple(RAIL if d.source in fixed else index[d.source] for d in devs),
-        dev_input=tuple(inputs.index(d.gate) for d in devs),
+        dev_input=tuple(-1 if d.gate in held else inputs.index(d.gate) for d in devs),
         dev_on=tuple(1 if d.type == "nmos" else 0 for d in devs),
         v_lim=pass_limit(tech.mos["pmos" if mirror else "nmos"], float(tech.vdd)),
+        always_on=sum(1 << k for k, d in enumerate(devs) if d.gate in held),
     )
     return model.with_precharged(precharged)

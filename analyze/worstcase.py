@@ -108,14 +108,14 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
             visit(on2, comp2, rest, bnd)
         set_option(c, 0)
 
-    comp0, tied0 = model.component(0)
+    comp0, tied0 = model.component(model.always_on)
     if tied0:
         return None
-    everything = 0
+    everything = model.always_on
     for c in choices:
         everything |= c.devices
     reach0, _ = model.component(everything)
-    visit(0, comp0, frozenset(range(n)), model.bound(reach0, comp0))
+    visit(model.always_on, comp0, frozenset(range(n)), model.bound(reach0, comp0))
     if best[0] is None:
         return None
     (_, values), comp = best[0]

@@ -87,3 +87,23 @@ def test_no_counted_pattern_passes():
     assert res.worst_case is None and res.counted_patterns == 0
     assert res.status == "pass"
     assert res.margin_v == pytest.approx(TECH.vdd - res.threshold_v)
+
+
+def test_held_gates_and_other_rails():
+    # X - A - n1 - (gate at VDD, always on) - n2 - B - FOOT, and a leg X - C - VSS
+    # straight to ground beside the footer.  VDD is no input; n1 and n2
+    # always share together; C = 1 ties X to ground.
+    # Hand count: patterns over (A, B, C) with C = 0 and not (A = B = 1): 3.
+    ev = [("MA", "X", "A", "n1"), ("MON", "n1", "VDD", "n2"), ("MB", "n2", "B", "FOOT"),
+          ("MC", "X", "C", "VSS")]
+    caps = {"X": dict(linear=30.0), "n1": dict(linear=6.0), "n2": dict(linear=4.0)}
+    circuit, stage = domino(TECH, ev, caps)
+    res = analyze_stage(circuit, stage, TECH)
+    assert set(res.worst_case.inputs) == {"A", "B", "C"}
+    assert res.worst_case.inputs == {"A": 1, "B": 0, "C": 0}
+    assert res.worst_case.shared_nodes == ["n1", "n2"]
+    # Lossless: 30 * 1.8 / 40 = 1.35 V.
+    assert res.worst_case.v_final_linear == pytest.approx(1.35)
+    assert res.counted_patterns == 3
+    assert len(list(iter_counted_patterns(circuit, stage, TECH))) == 3
+    assert evaluate_pattern(circuit, stage, TECH, {"A": 0, "B": 0, "C": 1}) is None

@@ -16,6 +16,34 @@ capacitances, the threshold from the square-law inverter formula
 
 Constraints are an :class:`analyze.constraints.Constraints` (from
 :func:`analyze.constraints.load_constraints`) or None for none.
+
+Examples
+--------
+A footless domino NAND2 with linear capacitances only and no body effect
+(pass limit 1.8 − 0.45 = 1.35 V): the worst case shares n1 with X,
+30 fF · 1.8 V / 40 fF = 1.35 V; three of the four patterns count.
+
+>>> from extract.circuit import CapParts, Circuit, Device, Net
+>>> from extract.tech import MosParams, NetRoles, Tech
+>>> from analyze.stage import Stage
+>>> p = dict(gamma=0.0, phi=0.8, kp=200.0, cox=8.0, cgo=0.0, cj=1.0, cjsw=0.2,
+...          cjswg=0.2, mj=0.5, mjsw=0.33, pb=0.8, pbsw=0.8)
+>>> tech = Tech("t", 1.8, NetRoles(), {}, {"nmos": MosParams("nmos", 0.45, **p),
+...                                         "pmos": MosParams("pmos", -0.45, **p)})
+>>> nets = {n: Net(n, cap=CapParts(wire=c)) for n, c in [("X", 30.0), ("n1", 10.0)]}
+>>> devs = [Device("MA", "nmos", "X", "A", "n1", 1.0, 0.18),
+...         Device("MB", "nmos", "n1", "B", "VSS", 1.0, 0.18)]
+>>> st = Stage("X", "n", "CLK", "VDD", "VSS", (), ("MA", "MB"), None, None, ("A", "B"), ("n1",))
+>>> circuit = Circuit("nand2", nets, devs)
+>>> r = analyze_stage(circuit, st, tech)
+>>> r.worst_case.inputs, round(r.worst_case.v_final, 6), r.counted_patterns, r.status
+({'A': 1, 'B': 0}, 1.35, 3, 'pass')
+>>> evaluate_pattern(circuit, st, tech, {"A": 1, "B": 1}) is None
+True
+>>> [w.inputs for w in iter_counted_patterns(circuit, st, tech, limit=2)]
+[{'A': 0, 'B': 0}, {'A': 0, 'B': 1}]
+>>> find_worst_case(circuit, st, tech).shared_nodes
+['n1']
 """
 
 from __future__ import annotations
@@ -38,6 +66,7 @@ __all__ = [
     "Flag",
     "StageResult",
     "analyze_stage",
+    "find_worst_case",
     "evaluate_pattern",
     "iter_counted_patterns",
 ]
@@ -133,6 +162,32 @@ def analyze_stage(
         flag_note=note,
         counted_patterns=count_counted(model, choices),
     )
+
+
+def find_worst_case(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    *,
+    precharged=frozenset(),
+) -> WorstCase | None:
+    """The exact worst case alone (no threshold, count or flags).
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    constraints : Constraints or None
+    precharged : iterable of str
+
+    Returns
+    -------
+    WorstCase or None
+        None when no allowed pattern counts.
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, precharged)
+    found = worst_case(model, choices)
+    return None if found is None else model.outcome(found.values, found.component)
 
 
 def _values(model: SharingModel, inputs: dict[str, int]) -> tuple[int, ...]:

@@ -123,13 +123,18 @@ def find_flags(
     if not cands:
         return [], "no internal node shares charge with the dynamic node, so no precharge device can help"
     if not ok(_bits(cands)):
-        v = model.to_volts(search(_bits(cands)).u_final)
-        return [], (
-            f"even with every internal node pre-conditioned the worst case ends at {v:.3f} V, "
-            "still short of the receiver threshold plus guard: the dynamic node itself cannot "
-            "hold its level (its own capacitance is too small for what it drives)"
+        u = search(_bits(cands)).u_final
+        why = (
+            "the receiver threshold plus guard is beyond the supply, so the stage cannot pass"
+            if u >= model.vdd - 1e-9
+            else "the dynamic node itself is too small for the charge it must share"
         )
-    chosen, note = _smallest(cands, search, ok, discharged, 0)
+        return [], (
+            f"even with every internal node pre-conditioned the worst case ends at "
+            f"{model.to_volts(u):.3f} V, still short of the receiver threshold plus guard: {why}"
+        )
+    chosen = _smallest(cands, search, ok, discharged)
+    note = None
     if chosen is None:
         chosen = _greedy(search, ok, discharged)
         note = (
@@ -139,31 +144,31 @@ def find_flags(
     return _ordered(circuit, model, chosen, search), note
 
 
-def _smallest(cands, search, ok, discharged, start_searches):
+def _smallest(cands, search, ok, discharged):
     """Exhaustive part of :func:`find_flags`: the best passing set of the
     smallest size, or None when the budget runs out."""
     misses = [discharged(0)]
-    searches, looked = start_searches, 0
+    searches, looked = 0, 0
     for k in range(1, len(cands) + 1):
         best = None
         for nodes in combinations(cands, k):
             looked += 1
             if looked > SET_LIMIT:
-                return None, None
+                return None
             mask = _bits(nodes)
             if any(not (mask & m) for m in misses):
                 continue
             searches += 1
             if searches > SEARCH_BUDGET:
-                return None, None
+                return None
             if ok(mask):
                 if best is None or search(mask).u_final > search(best).u_final:
                     best = mask
             else:
                 misses.append(discharged(mask))
         if best is not None:
-            return best, None
-    return None, None
+            return best
+    return None
 
 
 def _greedy(search, ok, discharged) -> int:

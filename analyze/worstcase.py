@@ -2,8 +2,8 @@
 
 The worst case is the counted pattern with the lowest final dynamic-node
 voltage (highest for a p-type stage; in the normalised view of
-:mod:`analyze.sharing` always the lowest).  Final voltages are compared
-rounded to 1e-9 V; ties are broken by the lexicographically smallest
+:mod:`analyze.sharing` always the lowest).  Final voltages are compared in
+the normalised view, rounded to 1e-9 V; ties are broken by the lexicographically smallest
 pattern over the sorted inputs, so the answer is unique and does not
 depend on the search order.
 
@@ -156,7 +156,8 @@ def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto")
     once no undecided device touches the component its final voltage is
     known and the remaining blocks take their first option.  Final
     voltages are cached per set of shared nodes.  Worst case exponential;
-    a 24-leg mux takes a few hundred bound evaluations.
+    a 24-leg OR-mux takes under a hundred bound evaluations
+    (about 25 distinct final-voltage solves).
     """
     if method not in ("auto", "brute", "bound"):
         raise ValueError(f"unknown method {method!r}")

@@ -168,12 +168,9 @@ def attribute_droop(post_result, pre: Circuit, post: Circuit, net_map: dict[str,
 
 def _worst(circuit, stage, tech, constraints):
     """The exact worst case alone (no threshold, count or flags)."""
-    from analyze.analysis import _prepared
-    from analyze.worstcase import worst_case
+    from analyze.analysis import find_worst_case
 
-    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
-    found = worst_case(model, choices)
-    return None if found is None else model.outcome(found.values, found.component)
+    return find_worst_case(circuit, stage, tech, constraints)
 
 
 def compare_circuits(pre: Circuit, post: Circuit, match, tech, constraints=None, constraints_path=None) -> Comparison:

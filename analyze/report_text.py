@@ -35,7 +35,10 @@ def stage_block(result, circuit: Circuit, tech) -> str:
     """Text block for one :class:`analyze.analysis.StageResult`."""
     st = result.stage
     kind = "n-type (precharged high)" if st.polarity == "n" else "p-type (predischarged low)"
-    foot = f"footed (footer {st.footer})" if st.footed else "footless"
+    if st.polarity == "n":
+        foot = f"footed (footer {st.footer})" if st.footed else "footless"
+    else:
+        foot = f"footed (header {st.footer} to {st.rail})" if st.footed else "footless (no header)"
     verdict = "PASS" if result.status == "pass" else "FAIL"
     out = [f"stage {st.dynamic_node}: {kind}, {foot}, clock {st.clock}   [{verdict}]"]
     out.append(f"  at            {fmt_loc(st.location_um)}")

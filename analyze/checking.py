@@ -9,7 +9,7 @@ from analyze.output import check_outputs, emit
 from analyze.report_json import dumps, header, stage_json
 from analyze.report_text import check_header, stage_block
 
-__all__ = ["analyse_circuit", "check_report", "check_cell"]
+__all__ = ["analyse_circuit", "check_report", "check_cell", "load_run_inputs"]
 
 
 def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
@@ -48,11 +48,18 @@ def check_report(circuit, tech, recognition, results) -> dict:
     return report
 
 
-def check_cell(args) -> int:
-    from extract.pipeline import extract_layout
+def load_run_inputs(args, *extra_inputs):
+    """Refuse bad outputs, then read the tech file and the constraints (if
+    any) — everything is validated before any layout is read.
+
+    Returns
+    -------
+    tech : Tech
+    constraints : Constraints or None
+    """
     from extract.techfile import load_tech
 
-    inputs = [args.layout, args.tech, args.constraints]
+    inputs = [args.layout, args.tech, args.constraints, *extra_inputs]
     check_outputs({"--json": args.json, "--html": getattr(args, "html", None)}, inputs)
     tech = load_tech(args.tech)
     constraints = None
@@ -60,6 +67,13 @@ def check_cell(args) -> int:
         from analyze.constraints import load_constraints
 
         constraints = load_constraints(args.constraints)
+    return tech, constraints
+
+
+def check_cell(args) -> int:
+    from extract.pipeline import extract_layout
+
+    tech, constraints = load_run_inputs(args)
     circuit = extract_layout(args.layout, tech, args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
     for f in list(circuit.findings) + list(recognition.findings):

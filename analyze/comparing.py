@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import sys
 
-from analyze.output import check_outputs, emit
+from analyze.output import emit
 from analyze.report_json import _r, dumps, header, worst_case_json
 from analyze.report_text import fmt_loc
 
@@ -147,19 +147,12 @@ def compare_text(cmp) -> str:
 
 
 def compare_cell(args) -> int:
+    from analyze.checking import load_run_inputs
     from analyze.comparison import compare_circuits
     from analyze.match import match_circuits
     from extract.pipeline import extract_layout
-    from extract.techfile import load_tech
 
-    inputs = [args.layout, args.tech, args.schematic, args.constraints]
-    check_outputs({"--json": args.json, "--html": getattr(args, "html", None)}, inputs)
-    tech = load_tech(args.tech)
-    constraints = None
-    if args.constraints:
-        from analyze.constraints import load_constraints
-
-        constraints = load_constraints(args.constraints)
+    tech, constraints = load_run_inputs(args, args.schematic)
     post = extract_layout(args.layout, tech, args.cell)
     pre = read_matching_schematic(args.schematic, tech, post.cell)
     match = match_circuits(pre, post)

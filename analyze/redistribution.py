@@ -9,18 +9,48 @@ internal nodes: X itself (starts at ``vdd``), *discharged* nodes (start at
 0 V) and *precharged* nodes (start at ``vdd``, held there by a secondary
 precharge device).  Every join is a conducting nmos with its gate at
 ``vdd``, which passes no higher than ``v_lim = vdd − VT(v_lim)``
-(:func:`analyze.threshold.pass_limit`).  Charge is conserved; the final
-state is one of three regimes:
+(:func:`analyze.threshold.pass_limit`): it conducts only while its lower
+terminal is below ``v_lim``.  Charge is conserved; the final state is one
+of three regimes:
 
 ``"a"``
     all nodes at one voltage ``V <= v_lim``;
 ``"b"``
-    X above ``v_lim``: X alone charged the discharged nodes to ``v_lim``,
-    precharged nodes kept ``vdd`` (a device stops once its lower terminal
-    reaches ``v_lim``);
+    X above ``v_lim``: every discharged node ends at ``v_lim``, X paid for
+    those it shares a region with (below), precharged nodes paid for the
+    rest and end at or above ``v_lim``;
 ``"c"``
     X at ``v_lim``, discharged nodes at ``v_lim``, precharged nodes gave up
     charge to hold X there and end at or above ``v_lim``.
+
+Which node pays (:func:`network_final_voltage`).  If the common voltage of
+the whole component (charge conservation over all of it) is at or below
+``v_lim``, that is the answer (regime ``a``).  Otherwise no node ends below
+``v_lim`` (a set of nodes strictly below it would have no conducting
+neighbour above it, so it would be the whole component), every discharged
+node ends at ``v_lim`` and the *low* nodes (at or below ``v_lim``; at first
+the discharged ones) form connected *regions* through conducting devices.
+A region can be fed only by the high nodes next to it:
+
+1. regions not next to X are fed by the precharged nodes next to them,
+   pooled at one common voltage (regions sharing a precharged node share
+   the pool).  A pool that cannot stay at or above ``v_lim`` is exhausted:
+   its nodes end at ``v_lim``, join the low nodes with their shortfall, and
+   the merged region is looked at again (it may now touch X or further
+   precharged nodes) until nothing changes;
+2. regions next to X are paid for by X first: how a region's charge splits
+   between X and a precharged node beside it depends on device strengths,
+   so taking it from X first is the safe, pessimistic choice.  If X stays
+   at or above ``v_lim`` that is regime ``b``;
+3. otherwise X ends at ``v_lim``, joins the low nodes, and step 1 runs
+   again with X's region fed by the precharged nodes next to it: regime
+   ``c``.
+
+:func:`final_voltage` is the older, topology-free form (every discharged
+node taken to touch X, every precharged node pooled): it is exact when
+every region touches X and a lower bound otherwise (X never pays more in
+the network form), and it is monotone in the capacitances, so the
+worst-case search uses it for its bounds.
 
 Units: V, fF, fC.
 """
@@ -34,7 +64,7 @@ from scipy.optimize import brentq
 
 from analyze.charge import NodeCharge
 
-__all__ = ["Redistribution", "final_voltage", "linear_final_voltage"]
+__all__ = ["Redistribution", "final_voltage", "network_final_voltage", "linear_final_voltage"]
 
 _XTOL = 1e-12
 
@@ -52,13 +82,20 @@ class Redistribution:
     v_discharged : float
         Final voltage of the discharged shared nodes, V.
     v_precharged : float
-        Final voltage of the precharged shared nodes (taken as one group), V.
+        Final voltage of the precharged shared nodes: taken as one group by
+        :func:`final_voltage`; the lowest of them in
+        :func:`network_final_voltage` (``vdd`` outside regime ``a`` when
+        there are none), V.
+    voltages : tuple of float
+        Final voltage of every node, in input order
+        (:func:`network_final_voltage` only; empty otherwise), V.
     """
 
     v_final: float
     regime: str
     v_discharged: float
     v_precharged: float
+    voltages: tuple[float, ...] = ()
 
 
 def _solve(q: NodeCharge, target: float, lo: float, hi: float) -> float:
@@ -135,6 +172,231 @@ def final_voltage(
     rest = q_tot - float(x.charge(v_lim) + discharged.charge(v_lim))
     v_p = _solve(precharged, rest, v_lim, vdd)
     return Redistribution(v_lim, "c", v_lim, v_p)
+
+
+def _find(parent: list[int], i: int) -> int:
+    """Root of ``i`` in a union-find forest (path halving)."""
+    while parent[i] != i:
+        parent[i] = parent[parent[i]]
+        i = parent[i]
+    return i
+
+
+def _union(parent: list[int], i: int, j: int) -> None:
+    ri, rj = _find(parent, i), _find(parent, j)
+    if ri != rj:
+        parent[max(ri, rj)] = min(ri, rj)
+
+
+def _adjacency(n: int, edges) -> list[set[int]]:
+    """Neighbour sets of ``n`` nodes; every node must be joined to node 0."""
+    adj: list[set[int]] = [set() for _ in range(n)]
+    for i, j in edges:
+        if not (0 <= i < n and 0 <= j < n):
+            raise ValueError(f"edge {(i, j)} names a node outside 0..{n - 1}")
+        if i != j:
+            adj[i].add(j)
+            adj[j].add(i)
+    seen, stack = {0}, [0]
+    while stack:
+        for j in adj[stack.pop()]:
+            if j not in seen:
+                seen.add(j)
+                stack.append(j)
+    if len(seen) != n:
+        raise ValueError("the edges must join every node to node 0")
+    return adj
+
+
+def _regions(adj, low) -> tuple[list[int], dict[int, set[int]]]:
+    """Region (root node) of each node, and the high neighbours of each
+    region of low nodes."""
+    region = list(range(len(adj)))
+    for i, nbrs in enumerate(adj):
+        if low[i]:
+            for j in nbrs:
+                if low[j]:
+                    _union(region, i, j)
+    root = [_find(region, i) for i in range(len(adj))]
+    high: dict[int, set[int]] = {}
+    for i, nbrs in enumerate(adj):
+        if low[i]:
+            high.setdefault(root[i], set()).update(j for j in nbrs if not low[j])
+    return root, high
+
+
+def _bill(adj, low, need) -> tuple[float, list[int], dict[int, float]]:
+    """With X high: what X pays and for which low nodes, and the load of
+    each precharged node.
+
+    A region whose only high neighbour is one precharged node is its load
+    (charge conservation over the region: nothing else can feed it); X
+    pays for every other region (next to X, or next to several precharged
+    nodes whose split depends on device strengths).
+    """
+    root, high = _regions(adj, low)
+    demand: dict[int, float] = {}
+    for i in range(len(adj)):
+        if low[i]:
+            demand[root[i]] = demand.get(root[i], 0.0) + need[i]
+    x_pays, billed, loads = 0.0, set(), {}
+    for r, nbrs in high.items():
+        if len(nbrs) == 1 and 0 not in nbrs:
+            (p,) = nbrs
+            loads[p] = loads.get(p, 0.0) + demand[r]
+        else:
+            x_pays += demand[r]
+            billed.add(r)
+    return x_pays, [i for i in range(len(adj)) if low[i] and root[i] in billed], loads
+
+
+def _pools(adj, low, need) -> list[tuple[list[int], float]]:
+    """With X low: the precharged nodes next to each region, pooled (a
+    node next to two regions joins their pools), as ``(feeders, demand)``."""
+    root, high = _regions(adj, low)
+    pool = list(root)
+    for r, nbrs in high.items():
+        for p in nbrs:
+            _union(pool, p, r)
+    feeding = set().union(*high.values())
+    groups: dict[int, tuple[list[int], list[float]]] = {}
+    for i in range(len(adj)):
+        if low[i] or i in feeding:
+            feeders, demand = groups.setdefault(_find(pool, i), ([], [0.0]))
+            if low[i]:
+                demand[0] += need[i]
+            else:
+                feeders.append(i)
+    return [(feeders, demand[0]) for feeders, demand in groups.values()]
+
+
+def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistribution:
+    """Final dynamic-node voltage after charge sharing, with the topology (n-type view).
+
+    Parameters
+    ----------
+    charges : sequence of NodeCharge
+        Every node of the dynamic node's component; node 0 is the dynamic
+        node X (starts at ``vdd`` = ``charges[0].vdd``).
+    precharged : iterable of int
+        Nodes (never 0) that start at ``vdd``; every other node but X
+        starts at 0 V.
+    edges : iterable of (int, int)
+        Conducting devices between nodes (repeats and loops are ignored).
+    v_lim : float
+        Highest voltage a conducting evaluation device passes, V.
+
+    Returns
+    -------
+    Redistribution
+        With ``voltages`` holding every node's final voltage.
+
+    Raises
+    ------
+    ValueError
+        For an edge naming a node outside ``charges``, a node not joined
+        to node 0, or node 0 among ``precharged``.
+
+    Notes
+    -----
+    The rule of the module text.  Charge conservation with the junction
+    charge of :mod:`analyze.charge` (SPICE junction depletion-charge
+    formula) and the pass limit of the SPICE level-1 threshold with body
+    effect; each node's *need* is ``Q(v_lim) − Q(start)``.  Regions are
+    found by union-find in O(nodes + edges) per round; every round that
+    exhausts a precharged node adds it to the low set, so there are at
+    most ``2·len(precharged) + 1`` rounds.  Root searches
+    (scipy.optimize.brentq): one for X in regimes ``a`` and ``b``, one per
+    precharged node or pool that gave charge.  X never pays more than in
+    :func:`final_voltage`, so the result is at or above its one, and equal
+    when every region touches X.
+
+    Examples
+    --------
+    Linear capacitances, ``v_lim = 1.2`` V.  X (30 fF) – P (40 fF) – D
+    (20 fF): D, behind P, needs 20·1.2 = 24 fC; P gives it and ends at
+    (72 − 24)/40 = 1.2 V, X keeps VDD.
+
+    >>> lin = lambda c: NodeCharge.linear(c, 1.8)
+    >>> r = network_final_voltage([lin(30.0), lin(40.0), lin(20.0)], [1], [(0, 1), (1, 2)], 1.2)
+    >>> (r.v_final, r.regime, round(r.v_precharged, 9))
+    (1.8, 'b', 1.2)
+
+    A 10 fF P can give only 10·0.6 = 6 fC: it ends at 1.2 V and X (40 fF)
+    pays the other 18 fC, 1.8 − 18/40 = 1.35 V.
+
+    >>> r = network_final_voltage([lin(40.0), lin(10.0), lin(20.0)], [1], [(0, 1), (1, 2)], 1.2)
+    >>> (round(r.v_final, 9), r.regime, tuple(round(v, 9) for v in r.voltages))
+    (1.35, 'b', (1.35, 1.2, 1.2))
+    """
+    charges, precharged = list(charges), sorted(set(precharged))
+    n = len(charges)
+    x = charges[0]
+    vdd = x.vdd
+    v_lim = min(max(v_lim, 0.0), vdd)
+    low = [i != 0 for i in range(n)]
+    for i in precharged:
+        if not 0 < i < n:
+            raise ValueError(f"precharged node {i} is not one of 1..{n - 1}")
+        low[i] = False
+    adj = _adjacency(n, edges)
+    start = [0.0 if low[i] else vdd for i in range(n)]
+    q0 = [float(c.charge(v)) for c, v in zip(charges, start)]
+    ql = [float(c.charge(v_lim)) for c in charges]
+    q_tot = sum(q0)
+    if sum(ql) >= q_tot:
+        return _common(charges, q_tot, v_lim)
+    need = [b - a for a, b in zip(q0, ql)]  # < 0 for X and precharged nodes: what they can give
+    while True:  # X above v_lim: precharged nodes feed what only they can reach
+        x_pays, x_nodes, loads = _bill(adj, low, need)
+        short = [p for p, load in loads.items() if load > -need[p]]
+        if not short:
+            break
+        for p in short:
+            low[p] = True
+    target = q0[0] - x_pays
+    if ql[0] <= target:
+        pools = [([p], load) for p, load in loads.items()]
+        return _settle(charges, precharged, low, pools, _solve(x, target, v_lim, vdd), v_lim, "b")
+    low[0] = True
+    for i in x_nodes:  # what X was to pay is now X's region, fed beside X
+        adj[0].add(i)
+        adj[i].add(0)
+    while True:  # X at v_lim: the precharged nodes next to the low nodes hold it there
+        pools = _pools(adj, low, need)
+        if any(not feeders for feeders, _ in pools):
+            return _common(charges, q_tot, v_lim)  # every node low: only rounding gets here
+        short = [p for feeders, demand in pools if demand > -sum(need[i] for i in feeders) for p in feeders]
+        if not short:
+            return _settle(charges, precharged, low, pools, v_lim, v_lim, "c")
+        for p in short:
+            low[p] = True
+
+
+def _common(charges, q_tot: float, v_lim: float) -> Redistribution:
+    """Regime ``a``: every node at one voltage in ``[0, v_lim]``."""
+    everything = charges[0]
+    for q in charges[1:]:
+        everything = everything + q
+    v = _solve(everything, q_tot, 0.0, v_lim)
+    return Redistribution(v, "a", v, v, (v,) * len(charges))
+
+
+def _settle(charges, precharged, low, pools, v_x: float, v_lim: float, regime: str) -> Redistribution:
+    """Final voltages once the low set is stable: low nodes at ``v_lim``,
+    the precharged nodes of each pool at their common voltage, the rest
+    at vdd."""
+    vdd = charges[0].vdd
+    volts = [v_lim if low[i] else vdd for i in range(len(charges))]
+    volts[0] = v_x
+    for feeders, demand in pools:
+        q = charges[feeders[0]]
+        for i in feeders[1:]:
+            q = q + charges[i]
+        v = _solve(q, float(q.charge(vdd)) - demand, v_lim, vdd)
+        for i in feeders:
+            volts[i] = v
+    return Redistribution(v_x, regime, v_lim, min((volts[i] for i in precharged), default=vdd), tuple(volts))
 
 
 def linear_final_voltage(caps, starts) -> float:

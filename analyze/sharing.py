@@ -23,7 +23,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from analyze.charge import NodeCharge, node_charge
-from analyze.redistribution import Redistribution, final_voltage, linear_final_voltage
+from analyze.redistribution import (
+    Redistribution,
+    final_voltage,
+    linear_final_voltage,
+    network_final_voltage,
+)
 from analyze.stage import Stage
 from analyze.threshold import pass_limit
 from extract.circuit import Circuit
@@ -140,7 +145,8 @@ class SharingModel:
         """The same stage with the nodes ``names`` also starting precharged.
 
         The copy shares the cache of final voltages (a final voltage depends
-        only on which discharged and precharged nodes share).
+        only on which discharged and precharged nodes share, and on which
+        devices among them conduct).
 
         Raises
         ------
@@ -258,7 +264,9 @@ class SharingModel:
         )
 
     def redistribute(self, discharged: int, precharged: int) -> Redistribution:
-        """Normalised final state for these shared node sets (cached)."""
+        """Topology-free normalised final state for these shared node sets
+        (:func:`analyze.redistribution.final_voltage`, cached): exact when
+        every discharged node touches X, a lower bound otherwise."""
         key = (discharged, precharged)
         hit = self._cache.get(key)
         if hit is None:
@@ -266,17 +274,70 @@ class SharingModel:
             self._cache[key] = hit
         return hit
 
-    def u_final(self, node_mask: int) -> float:
-        """Normalised final dynamic-node voltage of a component, V."""
-        return self.redistribute(*self.split(node_mask)).v_final
+    def topology_matters(self, node_mask: int) -> bool:
+        """True when a component holds both discharged and precharged nodes,
+        so its final state depends on which devices among them conduct."""
+        discharged, precharged = self.split(node_mask)
+        return bool(discharged and precharged)
+
+    def pairs(self, node_mask: int, on: int) -> tuple[tuple[int, int], ...]:
+        """Node pairs ``(i, j)``, ``i < j``, joined by devices of ``on``
+        inside the component ``node_mask``, sorted.  O(devices)."""
+        inside = on & self.touching(node_mask)
+        out, d = set(), 0
+        while inside:
+            if inside & 1:
+                a, b = self.dev_a[d], self.dev_b[d]
+                if a != b and RAIL not in (a, b) and (node_mask >> a) & (node_mask >> b) & 1:
+                    out.add((min(a, b), max(a, b)))
+            inside >>= 1
+            d += 1
+        return tuple(sorted(out))
+
+    def redistribute_component(self, node_mask: int, on: int) -> Redistribution:
+        """Normalised final state of the component ``node_mask`` whose
+        conducting devices are ``on`` (:func:`analyze.redistribution.
+        network_final_voltage`).  Cached per discharged set, precharged set
+        and conducting node pairs; a component without both kinds of node
+        needs no topology and shares the :meth:`redistribute` cache."""
+        discharged, precharged = self.split(node_mask)
+        if not (discharged and precharged):
+            return self.redistribute(discharged, precharged)
+        pairs = self.pairs(node_mask, on)
+        key = ("network", discharged, precharged, pairs)
+        hit = self._cache.get(key)
+        if hit is None:
+            idx = [i for i in range(node_mask.bit_length()) if (node_mask >> i) & 1]
+            local = {g: k for k, g in enumerate(idx)}
+            hit = network_final_voltage(
+                [self.charges[i] for i in idx],
+                [local[i] for i in idx if (precharged >> i) & 1],
+                [(local[a], local[b]) for a, b in pairs],
+                self.v_lim,
+            )
+            self._cache[key] = hit
+        return hit
+
+    def u_final(self, node_mask: int, on: int) -> float:
+        """Normalised final dynamic-node voltage of a component whose
+        conducting devices are ``on``, V."""
+        return self.redistribute_component(node_mask, on).v_final
+
+    def u_pattern(self, values, node_mask: int) -> float:
+        """:meth:`u_final` of a pattern's component; the conducting devices
+        are worked out from ``values`` only when the topology matters."""
+        on = self.conducting(values) if self.topology_matters(node_mask) else 0
+        return self.u_final(node_mask, on)
 
     def bound(self, reach: int, component: int) -> float:
         """Lowest normalised final voltage any completion can reach, V.
 
         Every discharged node of ``reach`` (what undecided devices could
         still join) with only the precharged nodes of ``component`` (joined
-        already): valid because the final voltage falls as discharged nodes
-        join and rises as precharged ones do.
+        already), in the topology-free :meth:`redistribute`: valid because
+        that final voltage falls as discharged nodes join and rises as
+        precharged ones do, and it is never above the topology-aware one
+        of the same nodes (:mod:`analyze.redistribution`).
         """
         d, _ = self.split(reach)
         _, p = self.split(component)
@@ -286,13 +347,15 @@ class SharingModel:
         """Real voltage of a normalised one."""
         return u if self.stage.polarity == "n" else self.vdd - u
 
-    def _component_result(self, node_mask: int) -> tuple:
+    def _component_result(self, node_mask: int, on: int) -> tuple:
         """(shared names, v_final, v_final_linear, droop, regime) of a
-        component, real voltages; cached per component and precharge set."""
-        key = ("outcome", node_mask, self.precharged)
+        component, real voltages; cached per component, precharge set and,
+        where the topology matters, conducting node pairs."""
+        pairs = self.pairs(node_mask, on) if self.topology_matters(node_mask) else None
+        key = ("outcome", node_mask, self.precharged, pairs)
         hit = self._cache.get(key)
         if hit is None:
-            red = self.redistribute(*self.split(node_mask))
+            red = self.redistribute_component(node_mask, on)
             idx = [i for i in range(len(self.nodes)) if (node_mask >> i) & 1]
             starts = [self.vdd if (i == 0 or (self.precharged >> i) & 1) else 0.0 for i in idx]
             u_lin = linear_final_voltage(self.zero_bias[idx], starts)
@@ -304,7 +367,8 @@ class SharingModel:
 
     def outcome(self, values, node_mask: int) -> WorstCase:
         """The :class:`WorstCase` record of a counted pattern."""
-        shared, v, v_lin, droop, regime = self._component_result(node_mask)
+        on = self.conducting(values) if self.topology_matters(node_mask) else 0
+        shared, v, v_lin, droop, regime = self._component_result(node_mask, on)
         return WorstCase(dict(zip(self.inputs, map(int, values))), list(shared), v, v_lin, droop, regime)
 
 

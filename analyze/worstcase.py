@@ -50,13 +50,14 @@ class Found:
 def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
     best = None
     for values, comp in iter_counted(model, choices):
-        key = (round(model.u_final(comp), _DIGITS), values)
+        u = model.u_pattern(values, comp)
+        key = (round(u, _DIGITS), values)
         if best is None or key < best[0]:
-            best = (key, comp)
+            best = (key, comp, u)
     if best is None:
         return None
-    (_, values), comp = best
-    return Found(values, comp, model.u_final(comp))
+    (_, values), comp, u = best
+    return Found(values, comp, u)
 
 
 def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | None:
@@ -65,13 +66,13 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
     for c in choices:
         for col, v in zip(c.columns, c.options[0]):
             vals[col] = v
-    best: list = [None]  # ((rounded u, key), component)
+    best: list = [None]  # ((rounded u, key), component, u)
 
     def pruned(bound: float) -> bool:
         if best[0] is None:
             return False
         b = round(bound, _DIGITS)
-        (bu, bkey), _ = best[0]
+        (bu, bkey), _, _ = best[0]
         return b > bu or (b == bu and tuple(vals) >= bkey)
 
     def set_option(c: Choice, k: int) -> None:
@@ -84,9 +85,10 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
         touch = model.touching(comp)
         frontier = [i for i in sorted(undecided) if choices[i].devices & touch]
         if not frontier:  # closed: undecided blocks cannot matter, take option 0
-            key = (round(bound, _DIGITS), tuple(vals))
+            u = model.u_final(comp, on)  # exact, at or above the bound
+            key = (round(u, _DIGITS), tuple(vals))
             if best[0] is None or key < best[0][0]:
-                best[0] = (key, comp)
+                best[0] = (key, comp, u)
             return
         pick = frontier[0]
         rest = undecided - {pick}
@@ -118,8 +120,8 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
     visit(model.always_on, comp0, frozenset(range(n)), model.bound(reach0, comp0))
     if best[0] is None:
         return None
-    (_, values), comp = best[0]
-    return Found(values, comp, model.u_final(comp))
+    (_, values), comp, u = best[0]
+    return Found(values, comp, u)
 
 
 def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto") -> Found | None:
@@ -143,19 +145,26 @@ def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto")
     -----
     Branch-and-bound, depth first.  A partial assignment is dropped when
     its conducting devices already tie the dynamic node to the rail.  Its
-    bound is the final voltage with every discharged node that undecided
-    devices could still join (the rail blocks) together with only the
-    precharged nodes joined through decided devices; it is a valid lower
-    bound because the final voltage falls as discharged nodes join and
-    rises as precharged ones do (:func:`analyze.redistribution.final_voltage`).
+    bound is the topology-free final voltage
+    (:func:`analyze.redistribution.final_voltage`) with every discharged
+    node that undecided devices could still join (the rail blocks)
+    together with only the precharged nodes joined through decided
+    devices.  It is a valid lower bound: that voltage falls as discharged
+    nodes join and rises as precharged ones do, and it is never above the
+    topology-aware voltage of the same nodes
+    (:func:`analyze.redistribution.network_final_voltage`, which leaves,
+    brute force and the reported result use), so no completion ends
+    below it.
     A subtree is dropped when its bound is above the best, or equal to it
     while its lexicographically smallest completion (every undecided block
     at its first option: blocks are independent) is not smaller than the
     best pattern.  Only blocks driving a device on the boundary of the
     dynamic node's component are branched on, children best bound first;
     once no undecided device touches the component its final voltage is
-    known and the remaining blocks take their first option.  Final
-    voltages are cached per set of shared nodes.  Worst case exponential;
+    known (its conducting devices are all decided) and the remaining
+    blocks take their first option.  Final voltages are cached per set of
+    shared nodes and, where a component holds both discharged and
+    precharged nodes, its conducting node pairs.  Worst case exponential;
     a 24-leg OR-mux takes under a hundred bound evaluations
     (about 25 distinct final-voltage solves).
     """

@@ -14,7 +14,7 @@ import itertools
 import networkx as nx
 
 from analyze.charge import NodeCharge, node_charge
-from analyze.redistribution import final_voltage
+from analyze.redistribution import network_final_voltage
 from analyze.threshold import pass_limit
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import MosParams, NetRoles, Tech
@@ -155,7 +155,8 @@ def brute_force(circuit, stage, tech, constraints=None, precharged=()):
     """``(count, best)`` by enumeration of every pattern: ``best`` is
     ``((rounded normalised v_final, pattern tuple over sorted inputs), shared
     node set)`` or None.  Components by networkx, voltages by
-    analyze.redistribution.final_voltage."""
+    analyze.redistribution.network_final_voltage on the component's
+    conducting devices."""
     vdd = tech.vdd
     mirror = stage.polarity == "p"
     fixed = {stage.rail, stage.footer_node} - {None}
@@ -186,11 +187,14 @@ def brute_force(circuit, stage, tech, constraints=None, precharged=()):
             continue
         count += 1
         shared = frozenset(comp - {"X"})
-        if shared not in memo:
-            pre = {n for n in shared if n in stage.secondary_precharge or n in precharged}
-            r = final_voltage(charge(["X"]), charge(sorted(shared - pre)), charge(sorted(pre)), v_lim)
-            memo[shared] = r.v_final
-        key = (round(memo[shared], 9), values)
+        order = ["X", *sorted(shared)]
+        edges = frozenset(frozenset(e) for e in g.subgraph(comp).edges())
+        if (shared, edges) not in memo:
+            pre = [k for k, n in enumerate(order) if n in stage.secondary_precharge or n in precharged]
+            pairs = [(order.index(min(e)), order.index(max(e))) for e in edges]  # a loop: (i, i)
+            r = network_final_voltage([charge([n]) for n in order], pre, pairs, v_lim)
+            memo[shared, edges] = r.v_final
+        key = (round(memo[shared, edges], 9), values)
         if best is None or key < best[0]:
             best = (key, shared)
     return count, best

@@ -3,8 +3,9 @@
 The reference is brute force written out here, independent of the
 analyser's own enumeration: every pattern of the inputs, the constraints
 checked by their definition, the dynamic node's component found with
-networkx, and the final voltage from analyze.redistribution.final_voltage
-(its physics is checked against ngspice and hand calculations in
+networkx, and the final voltage from
+analyze.redistribution.network_final_voltage on the component's conducting
+devices (its physics is checked against ngspice and hand calculations in
 test_redistribution.py and test_against_ngspice.py).
 """
 

@@ -253,7 +253,8 @@ def iter_counted_patterns(
     Order of :func:`analyze.patterns.iter_counted` (constraint blocks by
     first input, options lexicographic, last block fastest).  Patterns are
     evaluated in vectorised chunks and final voltages cached per set of
-    shared nodes.
+    shared nodes (and, where discharged and precharged nodes share, per
+    set of conducting node pairs among them).
     """
     model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
     if limit is not None and limit <= 0:

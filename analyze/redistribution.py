@@ -17,8 +17,8 @@ of three regimes:
     all nodes at one voltage ``V <= v_lim``;
 ``"b"``
     X above ``v_lim``: every discharged node ends at ``v_lim``, X paid for
-    those it shares a region with (below), precharged nodes paid for the
-    rest and end at or above ``v_lim``;
+    those joined to it (below), precharged nodes for the rest, ending at or
+    above ``v_lim``;
 ``"c"``
     X at ``v_lim``, discharged nodes at ``v_lim``, precharged nodes gave up
     charge to hold X there and end at or above ``v_lim``.
@@ -27,30 +27,41 @@ Which node pays (:func:`network_final_voltage`).  If the common voltage of
 the whole component (charge conservation over all of it) is at or below
 ``v_lim``, that is the answer (regime ``a``).  Otherwise no node ends below
 ``v_lim`` (a set of nodes strictly below it would have no conducting
-neighbour above it, so it would be the whole component), every discharged
-node ends at ``v_lim`` and the *low* nodes (at or below ``v_lim``; at first
-the discharged ones) form connected *regions* through conducting devices.
-A region can be fed only by the high nodes next to it:
+neighbour above it, so it would be the whole component) and every
+discharged node ends at ``v_lim``.  The *low* nodes (at or below
+``v_lim``; at first the discharged ones) form connected *regions* through
+conducting devices, and a device between two high nodes does not conduct,
+so a region is fed only by the high nodes next to it:
 
-1. regions not next to X are fed by the precharged nodes next to them,
-   pooled at one common voltage (regions sharing a precharged node share
-   the pool).  A pool that cannot stay at or above ``v_lim`` is exhausted:
-   its nodes end at ``v_lim``, join the low nodes with their shortfall, and
-   the merged region is looked at again (it may now touch X or further
-   precharged nodes) until nothing changes;
-2. regions next to X are paid for by X first: how a region's charge splits
-   between X and a precharged node beside it depends on device strengths,
-   so taking it from X first is the safe, pessimistic choice.  If X stays
-   at or above ``v_lim`` that is regime ``b``;
-3. otherwise X ends at ``v_lim``, joins the low nodes, and step 1 runs
-   again with X's region fed by the precharged nodes next to it: regime
-   ``c``.
+1. X pays for the regions joined to it through low nodes.  How a region's
+   charge splits between X and a precharged node beside it depends on
+   device strengths, so taking it from X first is the safe, pessimistic
+   choice.
+2. A region reached only through precharged nodes is fed by them; X pays
+   for it only once one of them has run out (fallen to ``v_lim``, so that
+   the device from X conducts).  Which one runs out first depends on
+   device strengths too, so the worst is taken: the set S of precharged
+   nodes that, each drained to ``v_lim`` by what lies behind it while the
+   others give nothing, makes X pay most (X's bill: the need of the nodes
+   joined to X through low nodes and S, S's own charge counted as given).
+   A precharged node that alone reaches a region therefore always feeds
+   it (nothing else can), and a region with several precharged neighbours
+   costs X what is left after the cheapest way in has run out.
+3. Regions still not joined to X are fed by the precharged nodes next to
+   them, pooled at one common voltage (regions sharing such a node share
+   the pool); a pool that cannot stay at or above ``v_lim`` runs out, its
+   nodes join the low ones, and step 2 is taken again.
+4. If X can pay its bill from above ``v_lim``, that is regime ``b``.
+   Otherwise X ends at ``v_lim`` (regime ``c``), held there by the
+   precharged nodes next to the low nodes, pooled (a pool that runs out
+   joins the low nodes and the next ones hold).
 
-:func:`final_voltage` is the older, topology-free form (every discharged
-node taken to touch X, every precharged node pooled): it is exact when
-every region touches X and a lower bound otherwise (X never pays more in
-the network form), and it is monotone in the capacitances, so the
-worst-case search uses it for its bounds.
+Precharging one more node never lowers X's result (it only closes ways in
+and adds charge).  :func:`final_voltage` is the older, topology-free form
+(every discharged node taken to touch X, every precharged node pooled): it
+is exact when every region touches X and a lower bound otherwise (X never
+pays more in the network form), and it is monotone in the capacitances,
+so the worst-case search uses it for its bounds.
 
 Units: V, fF, fC.
 """
@@ -63,10 +74,15 @@ import numpy as np
 from scipy.optimize import brentq
 
 from analyze.charge import NodeCharge
+from analyze.regions import SearchLimit, adjacency, joined, pools, worst_opening
 
 __all__ = ["Redistribution", "final_voltage", "network_final_voltage", "linear_final_voltage"]
 
 _XTOL = 1e-12
+
+#: Sets of precharged nodes :func:`network_final_voltage` may weigh for one
+#: component before it falls back to the topology-free :func:`final_voltage`.
+SEARCH_LIMIT = 4096
 
 
 @dataclass(frozen=True)
@@ -174,102 +190,6 @@ def final_voltage(
     return Redistribution(v_lim, "c", v_lim, v_p)
 
 
-def _find(parent: list[int], i: int) -> int:
-    """Root of ``i`` in a union-find forest (path halving)."""
-    while parent[i] != i:
-        parent[i] = parent[parent[i]]
-        i = parent[i]
-    return i
-
-
-def _union(parent: list[int], i: int, j: int) -> None:
-    ri, rj = _find(parent, i), _find(parent, j)
-    if ri != rj:
-        parent[max(ri, rj)] = min(ri, rj)
-
-
-def _adjacency(n: int, edges) -> list[set[int]]:
-    """Neighbour sets of ``n`` nodes; every node must be joined to node 0."""
-    adj: list[set[int]] = [set() for _ in range(n)]
-    for i, j in edges:
-        if not (0 <= i < n and 0 <= j < n):
-            raise ValueError(f"edge {(i, j)} names a node outside 0..{n - 1}")
-        if i != j:
-            adj[i].add(j)
-            adj[j].add(i)
-    seen, stack = {0}, [0]
-    while stack:
-        for j in adj[stack.pop()]:
-            if j not in seen:
-                seen.add(j)
-                stack.append(j)
-    if len(seen) != n:
-        raise ValueError("the edges must join every node to node 0")
-    return adj
-
-
-def _regions(adj, low) -> tuple[list[int], dict[int, set[int]]]:
-    """Region (root node) of each node, and the high neighbours of each
-    region of low nodes."""
-    region = list(range(len(adj)))
-    for i, nbrs in enumerate(adj):
-        if low[i]:
-            for j in nbrs:
-                if low[j]:
-                    _union(region, i, j)
-    root = [_find(region, i) for i in range(len(adj))]
-    high: dict[int, set[int]] = {}
-    for i, nbrs in enumerate(adj):
-        if low[i]:
-            high.setdefault(root[i], set()).update(j for j in nbrs if not low[j])
-    return root, high
-
-
-def _bill(adj, low, need) -> tuple[float, list[int], dict[int, float]]:
-    """With X high: what X pays and for which low nodes, and the load of
-    each precharged node.
-
-    A region whose only high neighbour is one precharged node is its load
-    (charge conservation over the region: nothing else can feed it); X
-    pays for every other region (next to X, or next to several precharged
-    nodes whose split depends on device strengths).
-    """
-    root, high = _regions(adj, low)
-    demand: dict[int, float] = {}
-    for i in range(len(adj)):
-        if low[i]:
-            demand[root[i]] = demand.get(root[i], 0.0) + need[i]
-    x_pays, billed, loads = 0.0, set(), {}
-    for r, nbrs in high.items():
-        if len(nbrs) == 1 and 0 not in nbrs:
-            (p,) = nbrs
-            loads[p] = loads.get(p, 0.0) + demand[r]
-        else:
-            x_pays += demand[r]
-            billed.add(r)
-    return x_pays, [i for i in range(len(adj)) if low[i] and root[i] in billed], loads
-
-
-def _pools(adj, low, need) -> list[tuple[list[int], float]]:
-    """With X low: the precharged nodes next to each region, pooled (a
-    node next to two regions joins their pools), as ``(feeders, demand)``."""
-    root, high = _regions(adj, low)
-    pool = list(root)
-    for r, nbrs in high.items():
-        for p in nbrs:
-            _union(pool, p, r)
-    feeding = set().union(*high.values())
-    groups: dict[int, tuple[list[int], list[float]]] = {}
-    for i in range(len(adj)):
-        if low[i] or i in feeding:
-            feeders, demand = groups.setdefault(_find(pool, i), ([], [0.0]))
-            if low[i]:
-                demand[0] += need[i]
-            else:
-                feeders.append(i)
-    return [(feeders, demand[0]) for feeders, demand in groups.values()]
-
-
 def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistribution:
     """Final dynamic-node voltage after charge sharing, with the topology (n-type view).
 
@@ -303,13 +223,17 @@ def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistrib
     charge of :mod:`analyze.charge` (SPICE junction depletion-charge
     formula) and the pass limit of the SPICE level-1 threshold with body
     effect; each node's *need* is ``Q(v_lim) − Q(start)``.  Regions are
-    found by union-find in O(nodes + edges) per round; every round that
-    exhausts a precharged node adds it to the low set, so there are at
-    most ``2·len(precharged) + 1`` rounds.  Root searches
-    (scipy.optimize.brentq): one for X in regimes ``a`` and ``b``, one per
-    precharged node or pool that gave charge.  X never pays more than in
-    :func:`final_voltage`, so the result is at or above its one, and equal
-    when every region touches X.
+    found by union-find in O(nodes + edges) per round; every round after
+    the first adds a precharged node to the low set, so there are at most
+    ``2·len(precharged) + 2`` rounds.  X's worst bill is a maximum-weight
+    connected node set, found by branch-and-bound over the precharged
+    nodes next to it (exponential at worst, a few sets for the stacks of
+    real gates); after :data:`SEARCH_LIMIT` sets the topology-free
+    :func:`final_voltage` is returned instead (a lower bound, without
+    ``voltages``).  Root searches (scipy.optimize.brentq): one for X in
+    regimes ``a`` and ``b``, one per pool that gave charge.  X never pays
+    more than in :func:`final_voltage`, so the result is at or above its
+    one, and equal when every region touches X.
 
     Examples
     --------
@@ -328,6 +252,14 @@ def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistrib
     >>> r = network_final_voltage([lin(40.0), lin(10.0), lin(20.0)], [1], [(0, 1), (1, 2)], 1.2)
     >>> (round(r.v_final, 9), r.regime, tuple(round(v, 9) for v in r.voltages))
     (1.35, 'b', (1.35, 1.2, 1.2))
+
+    A second precharged node P2 (40 fF) behind D: the worst is that P
+    still runs out first and P2 gives nothing, so X pays the same.
+
+    >>> r = network_final_voltage([lin(40.0), lin(10.0), lin(20.0), lin(40.0)], [1, 3],
+    ...                           [(0, 1), (1, 2), (2, 3)], 1.2)
+    >>> (round(r.v_final, 9), r.regime)
+    (1.35, 'b')
     """
     charges, precharged = list(charges), sorted(set(precharged))
     n = len(charges)
@@ -339,7 +271,7 @@ def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistrib
         if not 0 < i < n:
             raise ValueError(f"precharged node {i} is not one of 1..{n - 1}")
         low[i] = False
-    adj = _adjacency(n, edges)
+    adj = adjacency(n, edges)
     start = [0.0 if low[i] else vdd for i in range(n)]
     q0 = [float(c.charge(v)) for c, v in zip(charges, start)]
     ql = [float(c.charge(v_lim)) for c in charges]
@@ -347,30 +279,44 @@ def network_final_voltage(charges, precharged, edges, v_lim: float) -> Redistrib
     if sum(ql) >= q_tot:
         return _common(charges, q_tot, v_lim)
     need = [b - a for a, b in zip(q0, ql)]  # < 0 for X and precharged nodes: what they can give
-    while True:  # X above v_lim: precharged nodes feed what only they can reach
-        x_pays, x_nodes, loads = _bill(adj, low, need)
-        short = [p for p, load in loads.items() if load > -need[p]]
+    while True:  # X above v_lim: the worst precharged nodes run out first
+        try:
+            opened, x_pays = worst_opening(adj, low, need, SEARCH_LIMIT)
+        except SearchLimit:
+            return _topology_free(charges, precharged, v_lim)
+        for p in opened:
+            low[p] = True
+        fed = pools(adj, low, need, skip=joined(adj, low))
+        short = [p for feeders, demand in fed if demand > -sum(need[i] for i in feeders) for p in feeders]
         if not short:
             break
-        for p in short:
+        for p in short:  # what is left is fed by the precharged nodes beside it, or they run out
             low[p] = True
     target = q0[0] - x_pays
     if ql[0] <= target:
-        pools = [([p], load) for p, load in loads.items()]
-        return _settle(charges, precharged, low, pools, _solve(x, target, v_lim, vdd), v_lim, "b")
+        return _settle(charges, precharged, low, fed, _solve(x, target, v_lim, vdd), v_lim, "b")
     low[0] = True
-    for i in x_nodes:  # what X was to pay is now X's region, fed beside X
-        adj[0].add(i)
-        adj[i].add(0)
     while True:  # X at v_lim: the precharged nodes next to the low nodes hold it there
-        pools = _pools(adj, low, need)
-        if any(not feeders for feeders, _ in pools):
+        fed = pools(adj, low, need)
+        if any(not feeders for feeders, _ in fed):
             return _common(charges, q_tot, v_lim)  # every node low: only rounding gets here
-        short = [p for feeders, demand in pools if demand > -sum(need[i] for i in feeders) for p in feeders]
+        short = [p for feeders, demand in fed if demand > -sum(need[i] for i in feeders) for p in feeders]
         if not short:
-            return _settle(charges, precharged, low, pools, v_lim, v_lim, "c")
+            return _settle(charges, precharged, low, fed, v_lim, v_lim, "c")
         for p in short:
             low[p] = True
+
+
+def _topology_free(charges, precharged, v_lim: float) -> Redistribution:
+    """:func:`final_voltage` of the same nodes (no per-node voltages)."""
+    zero = NodeCharge.linear(0.0, charges[0].vdd)
+    discharged, pre = zero, zero
+    for i, q in enumerate(charges[1:], start=1):
+        if i in precharged:
+            pre = pre + q
+        else:
+            discharged = discharged + q
+    return final_voltage(charges[0], discharged, pre, v_lim)
 
 
 def _common(charges, q_tot: float, v_lim: float) -> Redistribution:

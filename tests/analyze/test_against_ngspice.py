@@ -14,6 +14,7 @@ import pytest
 
 from analyze.analysis import evaluate_pattern
 from analyze.charge import depletion_charge
+from analyze.sharing import build_model
 from analyze.threshold import pass_limit
 from ngspice_run import require_ngspice, run_deck
 from sharing_circuits import domino, make_tech
@@ -132,6 +133,82 @@ def test_precharged_node_rule_is_a_bound(polarity):
     out = run_deck(transient_deck(circuit, stage, TECH, pattern))
     droop_sim = abs(out["vx"] - (TECH.vdd if polarity == "n" else 0.0))
     assert droop_sim <= wc.droop_v + 0.001
+
+
+# The chain X – A – n1 – B – n2 – C – FOOT with n1 precharged and A = B = 1:
+# MA is off while X and n1 are both above the pass limit, so n1 alone feeds
+# n2; X gives charge only once n1 has run out at the limit.
+def _chain_caps(x: float, n1: float, n2: float) -> dict:
+    caps = _nand3_caps(x, 0.0)
+    caps["n1"]["linear"], caps["n2"]["linear"] = n1, n2
+    return caps
+
+
+def _node_voltage(polarity, caps, pattern, node):
+    """The analysis's own final voltage of ``node`` (real volts)."""
+    circuit, stage = domino(TECH, NAND3, caps, polarity=polarity, secondary=("n1",))
+    model = build_model(circuit, stage, TECH)
+    values = tuple(pattern[n] for n in model.inputs)
+    on = model.conducting(values)
+    comp, _ = model.component(on)
+    red = model.redistribute_component(comp, on)
+    local = [i for i in range(len(model.nodes)) if (comp >> i) & 1].index(model.nodes.index(node))
+    return model.to_volts(red.voltages[local])
+
+
+@pytest.mark.parametrize("polarity", ["n", "p"])
+def test_chain_precharged_node_feeds_what_only_it_reaches(polarity):
+    # Large n1, small n2: n1 charges n2 to the pass limit and stays above it;
+    # X keeps its start level, and n1 ends where the analysis puts it.
+    caps = _chain_caps(10.0, 8.0, 2.0)
+    pattern = {"A": 1, "B": 1, "C": 0}
+    wc, out = _check(NAND3, caps, polarity, pattern, "b", secondary=("n1",), probes=("n1", "n2"))
+    start = TECH.vdd if polarity == "n" else 0.0
+    assert wc.v_final == pytest.approx(start, abs=1e-9)
+    flipped = caps if polarity == "n" else _flip(caps)
+    real = pattern if polarity == "n" else {k: 1 - v for k, v in pattern.items()}
+    assert out["v_n1"] == pytest.approx(_node_voltage(polarity, flipped, real, "n1"), abs=TOL)
+    lim = pass_limit(TECH.mos["nmos" if polarity == "n" else "pmos"], TECH.vdd)
+    assert out["v_n2"] == pytest.approx(lim if polarity == "n" else TECH.vdd - lim, abs=TOL)
+
+
+@pytest.mark.parametrize("polarity", ["n", "p"])
+@pytest.mark.parametrize("x", [20.0, 10.0])
+def test_chain_precharged_node_runs_out(polarity, x):
+    # Small n1, large n2: n1 runs out at the pass limit and X, through it,
+    # pays the rest from above the limit (the fix of DYN_NAND3_LONG).
+    lim = pass_limit(TECH.mos["nmos" if polarity == "n" else "pmos"], TECH.vdd)
+    lim = lim if polarity == "n" else TECH.vdd - lim
+    wc, out = _check(NAND3, _chain_caps(x, 2.0, 8.0), polarity, {"A": 1, "B": 1, "C": 0}, "b",
+                     secondary=("n1",), probes=("n1", "n2"))
+    assert out["v_n1"] == pytest.approx(lim, abs=TOL)
+    assert out["v_n2"] == pytest.approx(lim, abs=TOL)
+    assert wc.droop_v > 0.1
+
+
+# X – A – p1 – B – d – C – p2 – D – FOOT (and d – E – FOOT), p1 and p2
+# precharged, A = B = C = 1: d has two precharged neighbours.  The small p1
+# runs out while p2 still feeds d, and X then pays through p1: pooling p1
+# and p2 as d's only supply would leave X at its start level, which ngspice
+# does not.  The analysis charges d to X first, a bound.
+TWO_FEEDERS = [("MA", "X", "A", "p1"), ("MB", "p1", "B", "d"), ("MC", "d", "C", "p2"),
+               ("MD", "p2", "D", "FOOT"), ("ME", "d", "E", "FOOT")]
+
+
+@pytest.mark.parametrize("polarity", ["n", "p"])
+def test_two_precharged_neighbours_rule_is_a_bound(polarity):
+    require_ngspice()
+    caps = {"X": dict(linear=10.0), "p1": dict(linear=1.0), "d": dict(linear=8.0),
+            "p2": dict(linear=40.0), "FOOT": dict(linear=0.5)}
+    pattern = {"A": 1, "B": 1, "C": 1, "D": 0, "E": 0}
+    if polarity == "p":
+        pattern = {k: 1 - v for k, v in pattern.items()}
+    circuit, stage = domino(TECH, TWO_FEEDERS, caps, polarity=polarity, secondary=("p1", "p2"))
+    wc = evaluate_pattern(circuit, stage, TECH, pattern)
+    out = run_deck(transient_deck(circuit, stage, TECH, pattern))
+    droop_sim = abs(out["vx"] - (TECH.vdd if polarity == "n" else 0.0))
+    assert droop_sim <= wc.droop_v + 0.001
+    assert droop_sim > 0.1  # pooling p1 and p2 would have promised no droop
 
 
 def test_reference_junction_discharge():

@@ -78,10 +78,9 @@ def sp_stages(draw):
     return circuit, stage, constraints
 
 
-@settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(sp_stages())
-def test_search_matches_brute_force(case):
-    circuit, stage, constraints = case
+def _agrees_with_brute_force(circuit, stage, constraints):
+    """Count, worst pattern, its voltage and shared nodes: both search
+    methods against sharing_circuits.brute_force."""
     count, best = brute_force(circuit, stage, TECH, constraints)
     model = build_model(circuit, stage, TECH)
     choices = bind_blocks(model, stage_blocks(constraints, model.inputs))
@@ -97,6 +96,73 @@ def test_search_matches_brute_force(case):
         assert found.u_final == pytest.approx(u_ref, abs=2e-9)
         got_shared = {model.nodes[i] for i in range(1, len(model.nodes)) if (found.component >> i) & 1}
         assert got_shared == shared_ref
+
+
+@settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(sp_stages())
+def test_search_matches_brute_force(case):
+    _agrees_with_brute_force(*case)
+
+
+# -- stacks with precharged middle nodes (the topology matters) --------------------
+@st.composite
+def precharged_stacks(draw):
+    # Legs X – ... – FOOT of 1 to 4 devices, some middle nodes precharged, and
+    # a few bridges between middle nodes: discharged nodes that only a
+    # precharged node reaches, or that several precharged nodes reach.
+    pool = [f"I{k}" for k in range(draw(st.integers(2, 10)))]
+    devices, mids = [], []
+    for leg in range(draw(st.integers(1, 3))):
+        nodes = ["X"] + [f"m{leg}{k}" for k in range(draw(st.integers(0, 3)))] + ["FOOT"]
+        mids += nodes[1:-1]
+        for a, b in zip(nodes, nodes[1:]):
+            devices.append((f"M{len(devices):02d}", a, draw(st.sampled_from(pool)), b))
+    if len(mids) >= 2:
+        for _ in range(draw(st.integers(0, 2))):
+            a, b = draw(st.lists(st.sampled_from(mids), min_size=2, max_size=2, unique=True))
+            devices.append((f"M{len(devices):02d}", a, draw(st.sampled_from(pool)), b))
+    caps = {"X": dict(linear=draw(st.floats(0.5, 20.0)), nmos=(0.5, 1.5, 1.0))}
+    for n in mids:
+        caps[n] = dict(linear=draw(st.floats(0.0, 10.0)), nmos=(0.4, 1.2, 2.0))
+    secondary = [n for n in mids if draw(st.booleans())]
+    polarity = draw(st.sampled_from("np"))
+    return domino(TECH, devices, caps, polarity=polarity, secondary=secondary)
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(precharged_stacks())
+def test_search_matches_brute_force_with_precharged_middle_nodes(case):
+    _agrees_with_brute_force(*case, None)
+
+
+def test_topology_changes_the_worst_case():
+    # X – A – n1 – B – n2 – C – FOOT with n1 precharged, and a second leg
+    # X – D – m – E – FOOT.  With the topology-free rule the worst case would
+    # put n2 behind n1 and X at the pass limit; but n1 feeds n2 itself (zero-
+    # bias totals n1 ≈ 11.1 fF, n2 ≈ 4.1 fF with the junction parts of
+    # sharing_circuits.make_net: n1 can give about (1.8 − 1.13) · 11 ≈ 7 fC,
+    # n2 needs about 1.13 · 4.1 ≈ 4.6 fC), so only m costs X anything, and
+    # the lexicographically smallest pattern sharing m is D alone.  Both
+    # search methods agree with brute force.
+    ev = [("MA", "X", "A", "n1"), ("MB", "n1", "B", "n2"), ("MC", "n2", "C", "FOOT"),
+          ("MD", "X", "D", "m"), ("ME", "m", "E", "FOOT")]
+    caps = {"X": dict(linear=4.0, nmos=(0.5, 1.5, 1.0)), "n1": dict(linear=10.0, nmos=(0.4, 1.2, 2.0)),
+            "n2": dict(linear=3.0, nmos=(0.4, 1.2, 2.0)), "m": dict(linear=1.0, nmos=(0.4, 1.2, 2.0))}
+    circuit, stage = domino(TECH, ev, caps, secondary=("n1",))
+    model = build_model(circuit, stage, TECH)
+    choices = bind_blocks(model, stage_blocks(None, model.inputs))
+    _, ((u_ref, values_ref), shared_ref) = brute_force(circuit, stage, TECH)
+    assert dict(zip(model.inputs, values_ref)) == {"A": 0, "B": 0, "C": 0, "D": 1, "E": 0}
+    assert shared_ref == {"m"}
+    for method in ("bound", "brute"):
+        found = worst_case(model, choices, method=method)
+        assert (found.values, found.u_final) == (values_ref, pytest.approx(u_ref, abs=2e-9))
+    # Everything joined (A = B = D = 1, C = E = 0): topology-free, X would be
+    # held at the pass limit; with n1 feeding n2 it stays above.
+    on = model.conducting(tuple(int(n in "ABD") for n in model.inputs))
+    full, _ = model.component(on)
+    assert model.redistribute(*model.split(full)).v_final == pytest.approx(model.v_lim)
+    assert model.u_final(full, on) > model.v_lim + 0.05
 
 
 # -- the OR-mux targets ------------------------------------------------------------

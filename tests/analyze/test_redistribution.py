@@ -299,3 +299,15 @@ def test_network_final_state_is_physical(case):
     for d in discharged:
         more = network_final_voltage(q, pre + [d], edges, v_lim).v_final
         assert more >= r.v_final - 1e-9
+
+
+def test_network_falls_back_to_the_topology_free_form(monkeypatch):
+    # Past the search limit the topology-free result is returned (a lower
+    # bound): X(40) – P(10) – D(20), X – P2(20) – D as in
+    # test_cheapest_way_in_runs_out_first, topology-free: X pays all 24 fC,
+    # 1.8 − 24/40 = 1.2 V, just at the limit.
+    import analyze.redistribution as redistribution
+
+    monkeypatch.setattr(redistribution, "SEARCH_LIMIT", 1)
+    r = net([40.0, 10.0, 20.0, 20.0], [1, 3], [(0, 1), (1, 2), (0, 3), (3, 2)])
+    assert (r.v_final, r.voltages) == (pytest.approx(1.2), ())

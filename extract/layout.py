@@ -13,6 +13,7 @@ name that does not exist — raise :class:`extract.errors.InputError`.
 
 from __future__ import annotations
 
+import math
 import os
 import sys
 import tempfile
@@ -110,10 +111,77 @@ def _check_gds_stream(path: str, data: bytes) -> None:
         if pos + length > n:
             raise InputError(path, "truncated GDSII file (record runs past the end)", f"byte {pos}")
         first = False
+        if rtype == 0x03:  # UNITS: two 8-byte reals
+            _check_units(path, data[pos + 4 : pos + length], pos)
         if rtype == 0x04:  # ENDLIB
             return
         pos += length
     raise InputError(path, "truncated GDSII file (no ENDLIB record)", f"byte {pos}")
+
+
+def gds_real(b: bytes) -> float:
+    """Decode an 8-byte GDSII real (sign, excess-64 base-16 exponent,
+    56-bit mantissa; GDSII Stream Format manual, "Real numbers").
+
+    >>> gds_real(bytes([0x41, 0x10, 0, 0, 0, 0, 0, 0]))
+    1.0
+    >>> gds_real(bytes([0x3E, 0x41, 0x89, 0x37, 0x4B, 0xC6, 0xA7, 0xEF]))  # 1e-3
+    0.001
+    >>> gds_real(bytes(8))
+    0.0
+    """
+    sign = -1.0 if b[0] & 0x80 else 1.0
+    exponent = (b[0] & 0x7F) - 64
+    mantissa = int.from_bytes(b[1:8], "big") / float(1 << 56)
+    return sign * mantissa * 16.0**exponent
+
+
+def _check_units(path: str, body: bytes, pos: int) -> None:
+    """Refuse a UNITS record whose database unit is not a usable length."""
+    if len(body) != 16:
+        raise InputError(path, "corrupt UNITS record", f"byte {pos}")
+    per_user, metres = gds_real(body[:8]), gds_real(body[8:])
+    if not (per_user > 0 and math.isfinite(per_user)):
+        raise InputError(path, f"UNITS record: database unit in user units is {per_user:g}", f"byte {pos}")
+    if not (1e-13 <= metres <= 1e-3):
+        raise InputError(
+            path, f"UNITS record: database unit of {metres:g} m is not a usable length (1e-13 to 1e-3 m)", f"byte {pos}"
+        )
+
+
+def _probe(path: str, is_oas: bool) -> None:
+    """Read the file once in a forked child first.
+
+    gdstk is a C library: some corrupt files make it crash the process
+    instead of raising.  A crash in the child becomes a clean error here;
+    where ``fork`` is not available nothing is probed.
+    """
+    if not hasattr(os, "fork"):
+        return
+    sys.stdout.flush()
+    sys.stderr.flush()
+    pid = os.fork()
+    if pid == 0:  # child: read and touch every cell, then leave without cleanup
+        code = 0
+        try:
+            null = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(null, 1)
+            os.dup2(null, 2)
+            import gdstk
+
+            lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)
+            for c in lib.cells:
+                _ = c.name
+                c.get_polygons(apply_repetitions=False, include_paths=True, depth=0)
+                for lab in c.get_labels(apply_repetitions=False, depth=0):
+                    _ = lab.text
+        except BaseException:
+            code = 3
+        os._exit(code)
+    _, status = os.waitpid(pid, 0)
+    if os.WIFSIGNALED(status):
+        kind = "OASIS" if is_oas else "GDSII"
+        raise InputError(path, f"corrupt {kind} file (the reader failed on its contents)")
 
 
 def _load_library(path: str):
@@ -132,6 +200,7 @@ def _load_library(path: str):
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
         _check_gds_stream(path, data)
+    _probe(path, is_oas)
     with _QuietNative() as quiet:
         try:
             lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)
@@ -142,15 +211,60 @@ def _load_library(path: str):
         why = detail[-1].replace("[GDSTK]", "").strip() if detail else "unreadable"
         kind = "OASIS" if is_oas else "GDSII"
         raise InputError(path, f"cannot read {kind} file: {why}")
+    if not (lib.precision > 0 and 1e-13 <= lib.precision <= 1e-3):
+        raise InputError(path, f"database unit of {lib.precision:g} m is not a usable length (1e-13 to 1e-3 m)")
     return lib
 
 
-def _reference_graph(lib) -> dict[str, list[str]]:
+def _reference_graph(path, lib) -> dict[str, list[str]]:
     """Cell name -> names of the cells it references (missing ones included)."""
     graph = {}
-    for c in lib.cells:
-        graph[c.name] = [ref.cell if isinstance(ref.cell, str) else ref.cell.name for ref in c.references]
+    try:
+        for c in lib.cells:
+            graph[c.name] = [ref.cell if isinstance(ref.cell, str) else ref.cell.name for ref in c.references]
+    except (TypeError, UnicodeError):
+        raise InputError(path, "a cell name is not valid text (bytes outside ASCII/UTF-8)") from None
     return graph
+
+
+#: Most shapes a cell may flatten to (override with DYNSHARE_MAX_SHAPES).
+MAX_FLAT_SHAPES = 20_000_000
+
+
+def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
+    """Number of shapes ``start`` flattens to: own polygons and paths plus,
+    per reference, the child's count times its repetition count.
+    Memoised over cells, O(cells + references)."""
+    cells = {c.name: c for c in lib.cells}
+    memo: dict[str, int] = {}
+
+    def reps(ref) -> int:
+        rep = ref.repetition
+        if rep is None or rep.size == 0:
+            return 1
+        return int(rep.size)
+
+    order = []
+    stack = [start]
+    seen = set()
+    while stack:  # post-order without recursion
+        name = stack[-1]
+        if name in seen:
+            stack.pop()
+            if name not in memo:
+                c = cells[name]
+                n = len(c.polygons) + len(c.paths)
+                for ref in c.references:
+                    child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
+                    n += memo[child] * reps(ref)
+                memo[name] = n
+            continue
+        seen.add(name)
+        order.append(name)
+        for child in graph[name]:
+            if child not in seen:
+                stack.append(child)
+    return memo[start]
 
 
 def _check_tree(path: str, graph: dict[str, list[str]], start: str) -> None:
@@ -207,7 +321,7 @@ class LayoutFile:
 def open_layout(path: str) -> LayoutFile:
     """Read a GDSII or OASIS file (see :func:`read_layout` for the errors)."""
     lib = _load_library(path)
-    return LayoutFile(path, lib, _reference_graph(lib))
+    return LayoutFile(path, lib, _reference_graph(path, lib))
 
 
 def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
@@ -224,6 +338,12 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     if cell not in graph:
         raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
     _check_tree(path, graph, cell)
+    limit = int(os.environ.get("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES))
+    count = _flat_count(lib, graph, cell)
+    if count > limit:
+        raise InputError(
+            path, f"flattens to {count:,} shapes, more than the limit of {limit:,} (set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
+        )
 
     top = next(c for c in lib.cells if c.name == cell)
     grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3
@@ -239,9 +359,15 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
         pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
         if len(pts) >= 3:
             flat.polygons.setdefault(key, []).append(pts)
-    for lab in labels:
-        x, y = (round(v / grid_um) * grid_um for v in lab.origin)
-        flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
+    try:
+        for lab in labels:
+            x, y = (round(v / grid_um) * grid_um for v in lab.origin)
+            flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
+    except (TypeError, UnicodeError):
+        raise InputError(path, "a text label is not valid text (bytes outside ASCII/UTF-8)", f"cell {cell}") from None
+    for pts in (p for arrays in flat.polygons.values() for p in arrays):
+        if not np.isfinite(pts).all() or np.abs(pts).max() > 1e8:
+            raise InputError(path, "coordinates beyond 100 m: not a usable layout", f"cell {cell}")
     return flat
 
 

@@ -9,7 +9,7 @@ from analyze.output import check_outputs, emit
 from analyze.report_json import dumps, header, stage_json
 from analyze.report_text import check_header, stage_block
 
-__all__ = ["analyse_circuit", "check_report", "check_cell", "load_run_inputs"]
+__all__ = ["analyse_circuit", "check_report", "check_cell", "load_run_inputs", "warn"]
 
 
 def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
@@ -76,8 +76,6 @@ def check_cell(args) -> int:
     tech, constraints = load_run_inputs(args)
     circuit = extract_layout(args.layout, tech, args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
-    for f in list(circuit.findings) + list(recognition.findings):
-        sys.stderr.write(f"warning: {f.text()}\n")
     report = check_report(circuit, tech, recognition, results)
     text = check_header(circuit, tech, recognition)
     for r in results:
@@ -95,4 +93,12 @@ def check_cell(args) -> int:
     emit(args.json, dumps(report))
     if html is not None:
         emit(args.html, html)
+    warn(list(circuit.findings) + list(recognition.findings))
     return 1 if failed else 0
+
+
+def warn(findings) -> None:
+    """Warnings to stderr, one line each.  Called only once every output
+    is written, so that a run ending in an error prints that line alone."""
+    for f in findings:
+        sys.stderr.write(f"warning: {f.text()}\n")

@@ -72,11 +72,11 @@ def run_extract(args) -> int:
         texts[args.spice] = write_spice(circuit, tech)
     if args.spef:
         texts[args.spef] = write_spef(circuit, tech)
-    _warn(circuit.findings)
     if not stdout_users:
         sys.stdout.write(extract_summary(circuit))
     for path, text in texts.items():
         emit(path, text)
+    _warn(circuit.findings)
     return 0
 
 

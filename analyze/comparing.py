@@ -157,8 +157,6 @@ def compare_cell(args) -> int:
     pre = read_matching_schematic(args.schematic, tech, post.cell)
     match = match_circuits(pre, post)
     cmp = compare_circuits(pre, post, match, tech, constraints, args.constraints)
-    for f in list(pre.findings) + list(post.findings):
-        sys.stderr.write(f"warning: {f.text()}\n")
     report = compare_report(cmp)
     html = None
     if getattr(args, "html", None):
@@ -170,4 +168,7 @@ def compare_cell(args) -> int:
     emit(args.json, dumps(report))
     if html is not None:
         emit(args.html, html)
+    from analyze.checking import warn
+
+    warn(list(pre.findings) + list(post.findings))
     return 1 if cmp.failed else 0

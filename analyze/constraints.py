@@ -18,7 +18,10 @@ case when that picks out one input (SPICE netlists are case-insensitive).
 from __future__ import annotations
 
 import re
-import tomllib
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
 from dataclasses import dataclass
 from typing import Iterable
 

@@ -34,6 +34,7 @@ class CellOutcome:
     stages: list[dict] = field(default_factory=list)
     error: str | None = None
     findings: list[str] = field(default_factory=list)
+    inputs: tuple[str, ...] = ()
 
     @property
     def status(self) -> str:
@@ -85,6 +86,7 @@ def check_cell_in_library(path: str, tech_path: str, cell: str, constraints_path
             devices=len(circuit.devices),
             stages=[stage_json(r, circuit) for r in results],
             findings=[f.text() for f in list(circuit.findings) + list(recognition.findings)],
+            inputs=tuple(sorted({n for st in recognition.stages for n in st.inputs})),
         )
     except InputError as exc:
         return CellOutcome(cell, error=exc.line())
@@ -156,10 +158,11 @@ def run_library(args) -> int:
         raise InputError(args.layout, f"--jobs must be at least 1, got {args.jobs}", "--jobs")
     check_outputs({"--json": args.json}, [args.layout, args.tech, args.constraints])
     tech = load_tech(args.tech)  # validate before any work
+    constraints = None
     if args.constraints:
         from analyze.constraints import load_constraints
 
-        load_constraints(args.constraints)
+        constraints = load_constraints(args.constraints)
     cells = open_layout(args.layout).cells
     jobs = max(1, args.jobs or 1)
 
@@ -180,15 +183,33 @@ def run_library(args) -> int:
          "stages": o.stages, "error": o.error, "findings": o.findings}
         for o in outcomes
     ]
+    if constraints is not None:
+        # as for one cell: every constrained net must be an input of some stage
+        # (of some cell); checked against the stages the library really has
+        from analyze.constraints import check_constraints_apply
+        from analyze.stage import Stage
+
+        union = tuple(sorted({n for o in outcomes for n in o.inputs}))
+        everything = Stage("*", "n", "", "", "", (), (), None, None, union, ())
+        try:
+            check_constraints_apply(constraints, [everything], args.constraints)
+        except InputError as exc:
+            if "allow no input pattern" not in exc.message:
+                raise
     bad = [o for o in outcomes if o.error]
     report["status"] = "error" if bad else ("fail" if any(o.status == "fail" for o in outcomes) else "pass")
     if args.json != "-":
         sys.stdout.write(summary_table(outcomes))
     emit(args.json, dumps(report))
-    for o in bad:
-        sys.stderr.write(f"warning: {o.error}\n")
+    if not bad:
+        for o in outcomes:
+            for text in o.findings:
+                sys.stderr.write(f"warning: cell {o.cell}: {text}\n")
     if bad:
         names = ", ".join(o.cell for o in bad[:10]) + (" ..." if len(bad) > 10 else "")
-        sys.stderr.write(f"error: {args.layout}: {len(bad)} of {len(outcomes)} cells could not be analysed: {names}\n")
+        sys.stderr.write(
+            f"error: {args.layout}: {len(bad)} of {len(outcomes)} cells could not be analysed "
+            f"(see \"error\" in the JSON report): {names}; first: {bad[0].error}\n"
+        )
         return 2
     return 1 if report["status"] == "fail" else 0

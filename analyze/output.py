@@ -9,6 +9,7 @@ so an input is never overwritten.
 from __future__ import annotations
 
 import os
+import stat
 import sys
 import tempfile
 
@@ -62,11 +63,36 @@ def check_outputs(outputs: dict[str, str | None], inputs: list[str]) -> None:
             raise InputError(path, "folder does not exist", option)
         if os.path.isdir(path):
             raise InputError(path, "is a folder", option)
+        special = os.path.exists(path) and not stat.S_ISREG(os.stat(path).st_mode)
+        if not special and not os.access(folder, os.W_OK):
+            raise InputError(path, "folder is not writable", option)
         seen[option] = path
 
 
 def write_atomic(path: str, text: str) -> None:
-    """Write ``text`` to ``path`` whole or not at all (temp file + rename)."""
+    """Write ``text`` to ``path`` whole or not at all (temp file + rename).
+
+    A symbolic link is followed (the file it names is replaced, the link
+    stays); a target that exists but is not a regular file — a device such
+    as ``/dev/null``, a FIFO — is written to directly, never replaced.
+
+    Raises
+    ------
+    InputError
+        When the file cannot be written (naming the output path).
+    """
+    try:
+        _write_atomic(path, text)
+    except OSError as exc:
+        raise InputError(path, f"cannot write: {exc.strerror or exc}") from None
+
+
+def _write_atomic(path: str, text: str) -> None:
+    path = os.path.realpath(path)
+    if os.path.exists(path) and not stat.S_ISREG(os.stat(path).st_mode):
+        with open(path, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+        return
     folder = os.path.dirname(os.path.abspath(path))
     fd, tmp = tempfile.mkstemp(prefix=".dynshare-", suffix=".tmp", dir=folder)
     try:

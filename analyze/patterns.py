@@ -116,6 +116,8 @@ def iter_counted(model: SharingModel, choices: list[Choice]) -> Iterator[tuple[t
     the trailing choices (at most :data:`CHUNK` patterns) are evaluated
     together with :meth:`SharingModel.components_batch`.
     """
+    if any(not c.options for c in choices):
+        return  # the constraints allow no pattern at all
     split = len(choices)
     while split > 0 and math.prod(len(c.options) for c in choices[split - 1:]) <= CHUNK:
         split -= 1

@@ -12,12 +12,16 @@ Steps, each a pure function of the one before:
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import shapely
+import shapely.errors
 
 from extract.capacitance import gate_parts, junction_parts, overlap_per_side, wire_parts
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.connectivity import Conductors, connect, name_nets
+from extract.errors import Finding, InputError
 from extract.devices import find_channels
 from extract.geometry import merge_parts, polygons_from_arrays, representative_points, subtract_overlapping
 from extract.layout import FlatLayout, LayoutFile, flatten_cell, read_layout
@@ -82,11 +86,32 @@ def _union(arrays):
 def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
     """Extract from an already flattened layout (see :func:`extract_layout`).
 
+    Raises
+    ------
+    InputError
+        When the geometry cannot be processed (degenerate shapes the
+        geometry engine refuses), naming the file and cell.
+
     Notes
     -----
     Cost is dominated by the polygon overlays and STR-tree queries,
     O(n log n) in the number of shapes.
     """
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        try:
+            circuit = _extract_flat(flat, tech)
+        except shapely.errors.GEOSException as exc:
+            raise InputError(flat.path, f"geometry cannot be processed ({exc})", f"cell {flat.cell}") from None
+    for name in [n for n, layer in tech.layers.items() if layer.kind in ("diffusion", "poly")]:
+        if not flat.polygons.get(tech.layers[name].gds):
+            circuit.findings.append(
+                Finding(f"tech layer {name} {list(tech.layers[name].gds)} has no shapes in cell {flat.cell}")
+            )
+    return circuit
+
+
+def _extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
     grid = flat.grid_um
     shapes = _layer_shapes(flat, tech)
     kinds = {name: layer.kind for name, layer in tech.layers.items()}

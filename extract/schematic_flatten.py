@@ -11,7 +11,8 @@ Units
     SPICE values are SI: W, L, PD, PS in metres (``1u`` = 1 µm), AD, AS
     in m² (``1p`` = 1 µm²), C in farads (``1f`` = 1 fF).  They are stored
     in µm, µm², fF.  A length above 1 mm (or an area above 1 mm²) is taken
-    for a unit mistake (``W=1`` is one metre in SPICE) and rejected.
+    for a unit mistake (``W=1`` is one metre in SPICE) and rejected, and so
+    is a capacitor above 1 nF (``1.3`` is 1.3 F, not 1.3 fF).
 Parameters
     Global ``.param`` first; then, per instance, the subcircuit's defaults
     (from its ``.subckt`` line) unless the ``X`` line overrides them (an
@@ -273,6 +274,10 @@ class _Builder:
         farads = vals["c"] * self.count(vals.get("m", 1), card.place, f"{name}: M")
         if farads < 0:
             raise self.error(f"{name}: capacitance must be >= 0, got {vals['c']:g}", card.place)
+        if vals["c"] > 1e-9:
+            # a wire estimate in a cell is fF to pF; above 1 nF the unit
+            # suffix was almost surely forgotten (``1.3`` is 1.3 farads)
+            raise self.error(f"{name}: {vals['c']:g} F is not a wire capacitance (forgot the f suffix?)", card.place)
         nodes = {self.net(n, prefix, ports) for n in pos[1:3]}
         signal = [n for n in nodes if self.tech.role_of(self.names[n]) not in ("power", "ground")]
         if len(nodes) == 1:

@@ -318,7 +318,12 @@ def evaluate(text: str, params: dict[str, float] | None = None) -> float:
     ...
     extract.spice_expr.ExpressionError: division by zero in expression 'w/0'
     """
-    result = _Parser(text, params or {}).parse()
+    if len(text) > 10_000:
+        raise ExpressionError("expression longer than 10000 characters")
+    try:
+        result = _Parser(text, params or {}).parse()
+    except RecursionError:
+        raise ExpressionError("expression nested too deeply") from None
     if not math.isfinite(result):
         raise ExpressionError(f"expression {text!r} is not a finite number")
     return result
@@ -329,7 +334,7 @@ def value_of(text: str, params: dict[str, float] | None = None) -> float:
 
     ``{expr}``, ``'expr'`` and ``"expr"`` are expressions; a bare SPICE
     number is a number; anything else is tried as an expression too (so
-    ``W=wn`` works as in HSPICE-style netlists).
+    ``W=wn`` works as in common SPICE dialects).
 
     Parameters
     ----------

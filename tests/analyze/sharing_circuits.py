@@ -141,7 +141,7 @@ def mux(tech: Tech, legs: int, x_linear: float = 6.0):
 
 
 def allowed(pattern: dict, constraints) -> bool:
-    """The constraint definitions of the contract, checked directly."""
+    """The constraint definitions of the README, checked directly."""
     if constraints is None:
         return True
     return (

@@ -212,7 +212,7 @@ def test_two_precharged_neighbours_rule_is_a_bound(polarity):
 
 
 def test_reference_junction_discharge():
-    # Self-check of the reference (REFERENCE-SIMULATION note): one n+
+    # Self-check of the reference (a known property of ngspice level 1): one n+
     # junction discharged by a constant current.  The time between two
     # voltages times the current equals the depletion-charge difference of
     # the SPICE junction formula, bottom plus sidewall.

@@ -21,7 +21,10 @@ import json
 import os
 import subprocess
 import sys
-import tomllib
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 

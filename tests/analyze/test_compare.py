@@ -48,7 +48,7 @@ SAMPLES = ROOT / "sample_layouts"
 GDS = SAMPLES / "dsk18_cells.gds"
 TECH_FILE = SAMPLES / "dsk18.toml"
 CELLS = ("DYN_NAND3", "DYN_NAND3_LONG")
-TOL_SPICE = 0.010  # V, agreement with the ngspice reference (the brief's bound)
+TOL_SPICE = 0.010  # V, agreement with the ngspice reference (the bound DEVELOPERS.md sets for the physics)
 TOL_REPORT = 2e-6  # the JSON report rounds to 1e-6 of its unit
 
 # ---------------------------------------------------------------- dsk18 numbers

@@ -16,7 +16,10 @@ Every circuit here is built by hand.  What each test checks against:
 from __future__ import annotations
 
 import random
-import tomllib
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
 from pathlib import Path
 
 import pytest

@@ -257,7 +257,7 @@ def test_network_final_state_is_physical(case):
     # Independent of the rule's bookkeeping: charge is conserved over the
     # node voltages it reports, every conducting device ends either with
     # both ends equal at or below the pass limit or with its lower end at or
-    # above it (the contract's final state), and X ends at or above the
+    # above it (the README's final-state condition), and X ends at or above the
     # topology-free result (it never pays more), equal when every region of
     # discharged nodes touches X.
     caps_, junction, edges, pre, v_lim = case

@@ -8,7 +8,7 @@ only when both of its sides are at 0 V; nmos junctions go to the ground
 net and pmos junctions to the power net, so every net, the power net
 included, is held at 0 V DC while one net at a time gets a 1 V AC drive.
 The level-1 models carry no tox and zero overlap coefficients, so there is
-no gate capacitance (REFERENCE-SIMULATION notes on ngspice level 1), and
+no gate capacitance (ngspice level-1 behaviour, checked by hand), and
 the measured C = Im(I) / (2 pi f V) is junction + wire alone.
 Bulk nets (power and ground) are not measured: their own diffusion has the
 bulk on both sides, which a circuit simulator rightly sees as nothing.

@@ -12,7 +12,10 @@ from __future__ import annotations
 
 import math
 import os
-import tomllib
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
 
 import gdstk
 import pytest
@@ -66,7 +69,7 @@ def test_doctests_of_the_drawing_modules():
 
 
 def test_every_cell_is_its_own_top_cell_in_um(lib):
-    # brief: one library, unit 1e-6 (µm), precision 1e-9, every cell a top cell
+    # sample_layouts/README.md: one library, unit 1e-6 (µm), precision 1e-9, every cell a top cell
     assert sorted(c.name for c in lib.top_level()) == sorted(CELL_NAMES)
     assert len(lib.cells) == len(CELL_NAMES)
     assert lib.unit == pytest.approx(1e-6) and lib.precision == pytest.approx(1e-9)
@@ -281,7 +284,7 @@ _LONG_STACK = [
     ("nmos", "CLK", ("?C+CLK", "VSS"), 1.2, 0.18),
 ]
 
-# The netlist each cell is meant to have, written from the brief's cell list.
+# The netlist each cell is meant to have, written from the cell list in sample_layouts/README.md.
 EXPECTED = {
     "DYN_NAND3": _NAND3_STACK + _top(),
     "DYN_NAND3_LONG": _LONG_STACK + _top(),
@@ -324,7 +327,7 @@ def test_cell_has_exactly_the_described_transistors(cells, name):
 
 @pytest.mark.parametrize("name", CELL_NAMES)
 def test_every_gate_reaches_0_2_um_past_its_active(cells, name):
-    # brief: poly extends ≥ 0.2 µm beyond the active on both sides.  Every
+    # sample_layouts/README.md: poly extends ≥ 0.2 µm beyond the active on both sides.  Every
     # gate is vertical except the 45° one, which is turned upright first;
     # then the poly must cover the channel grown by 0.2 µm along y.
     cell = cells[name]
@@ -602,7 +605,7 @@ meas tran out_end find v(out) at=10n
 
 
 def test_schematics_declare_the_same_ports_and_devices():
-    # the brief: .subckt NAME VDD VSS CLK inputs X OUT; W/L as drawn
+    # sample_layouts/README.md: .subckt NAME VDD VSS CLK inputs X OUT; W/L as drawn
     for name in ("DYN_NAND3", "DYN_NAND3_LONG"):
         text = open(os.path.join(SAMPLES, f"{name}.sp")).read()
         (sub,) = [l for l in text.splitlines() if l.lower().startswith(".subckt")]

@@ -6,7 +6,7 @@ Sources named beside each check:
   where a rule could be read two ways, ngspice 39 itself is asked (tests
   marked ngspice).
 - "hand": a calculation written out in the test.
-- "contract": the fixed interface (W/L/AD/AS/PD/PS units, PD includes the
+- "README": the documented interface (W/L/AD/AS/PD/PS units, PD includes the
   gate edge, net roles).
 """
 
@@ -211,7 +211,7 @@ def test_field_errors(text, message):
 
 
 def test_mos_units_keys_and_models():
-    # contract: W/L in metres in SPICE -> µm, AD/AS m² -> µm², PD/PS m -> µm;
+    # README: W/L in metres in SPICE -> µm, AD/AS m² -> µm², PD/PS m -> µm;
     # SPICE syntax: keys and model names are case-insensitive.
     c = parse(cell("MN1 X A n1 VSS NCH w=1.2u l=180n Ad=0.6p as=6e-13 pD=3.4u PS=3.4e-6\n"
                    "MN2 n1 B VSS VSS nfet_X W=1u L=0.18u\n"
@@ -266,7 +266,7 @@ def test_m_and_nf_are_separate_devices():
     ],
 )
 def test_mos_errors(body, line, message):
-    # contract: bad input names the file and the line
+    # README: bad input names the file and the line
     assert error(cell(body)) == f"cell.sp: line {line}: {message}"
 
 
@@ -543,7 +543,7 @@ def test_junction_and_wire_capacitance_agree_with_ngspice():
     M=2, C lines, a nested instance) and measures each signal net's zero-bias
     capacitance by AC analysis with every node at 0 V DC: it must equal the
     reader's junction + wire parts.  Level 1 has one sidewall coefficient for
-    the whole PD and no gate capacitance without tox (REFERENCE-SIMULATION
+    the whole PD and no gate capacitance without tox (ngspice level-1 behaviour, checked by hand;
     notes), so the tech used here has cjswg = cjsw and no overlap."""
     mos = {t: dataclasses.replace(p, cjswg=p.cjsw, cgo=0.0) for t, p in TECH.mos.items()}
     tech = dataclasses.replace(TECH, mos=mos)

@@ -33,7 +33,7 @@ def parsed():
 def test_header(parsed):
     _, spef = parsed
     h = spef["header"]
-    # Header records and their values as the brief and IEEE 1481-1998 fix them.
+    # Header records and their values as IEEE 1481-1998 and the README fix them.
     assert h["*SPEF"] == '"IEEE 1481-1998"'
     assert h["*DESIGN"] == '"dom_and2"'
     assert h["*DATE"] == f'"{SPEF_DATE}"'

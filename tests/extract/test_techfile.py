@@ -1,10 +1,10 @@
 """Tests of extract.techfile: the TOML tech-file reader.
 
 Sources of the expected outcomes:
-- "contract": the tech-file keys, types and units of the project's fixed
-  interface (the tables process, nets, layers, mos, check and the layer kinds);
-- "brief": the validation rules agreed for the reader (ranges, defaults,
-  key-path style), each one reasoned out by hand next to the case;
+- "README tech-file keys": the documented tech-file keys, types and units (the
+  tables process, nets, layers, mos, check and the layer kinds);
+- "README tech-file reference": the documented validation rules (ranges,
+  defaults, key-path style), each one reasoned out by hand next to the case;
 - "dsk18.toml": the demo file itself, its numbers copied by hand below;
 - TOML 1.0 specification (toml.io) for what is and is not valid syntax.
 """
@@ -14,7 +14,10 @@ from __future__ import annotations
 import copy
 import math
 import os
-import tomllib
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
 from pathlib import Path
 
 import pytest
@@ -144,7 +147,7 @@ def test_dsk18_loads_with_exact_values():
 
 
 def test_minimal_file_takes_the_defaults():
-    # Source: brief — cjswg defaults to cjsw, pbsw to pb, cgo to 0, models to
+    # Source: README tech-file reference — cjswg defaults to cjsw, pbsw to pb, cgo to 0, models to
     # (); nets.clock to (); check.guard to 0; [prelayout] to Prelayout();
     # area/fringe/labels/joins to their empty values.
     tech = parse_tech(MINIMAL, "mini.toml")
@@ -159,7 +162,7 @@ def test_minimal_file_takes_the_defaults():
 
 
 def test_integers_are_accepted_as_floats():
-    # Source: brief — "ints accepted where floats are expected".  kp = 300 is
+    # Source: README tech-file reference — "ints accepted where floats are expected".  kp = 300 is
     # written as an integer in MINIMAL.
     tech = parse_tech(edited({"process.vdd": 2}), "t.toml")
     assert tech.vdd == 2.0 and isinstance(tech.vdd, float)
@@ -167,7 +170,7 @@ def test_integers_are_accepted_as_floats():
 
 
 def test_explicit_optional_values_are_kept():
-    # Source: contract keys; each value given explicitly must come back as is.
+    # Source: README tech-file keys; each value given explicitly must come back as is.
     text = edited({"mos.nmos.cjswg": 0.5, "mos.nmos.pbsw": 0.9, "mos.nmos.cgo": 0.3,
                    "mos.nmos.models": ["n1"], "nets.clock": ["CK", "CKB"],
                    "check.guard": 0.1, "prelayout.contacted_length": 0.6,
@@ -182,7 +185,7 @@ def test_explicit_optional_values_are_kept():
 
 
 def test_range_edges_that_are_allowed():
-    # Source: brief — mj, mjsw in [0, 1) so 0 is allowed; cj etc. >= 0 so 0 is
+    # Source: README tech-file reference — mj, mjsw in [0, 1) so 0 is allowed; cj etc. >= 0 so 0 is
     # allowed; guard in [0, vdd).
     text = edited({"mos.nmos.mj": 0, "mos.nmos.mjsw": 0.999, "mos.nmos.cj": 0,
                    "mos.pmos.gamma": 0, "check.guard": 1.19})
@@ -240,7 +243,7 @@ def test_toml_syntax_errors_name_the_line(text, place):
 
 
 def test_message_format_is_file_place_message():
-    # Source: brief — messages like "t.toml: layers.poly.area: must be >= 0, got -1".
+    # Source: README tech-file reference — messages like "t.toml: layers.poly.area: must be >= 0, got -1".
     err = error_of(edited({"layers.poly.area": -1}))
     assert str(err) == "t.toml: layers.poly.area: must be >= 0, got -1"
 
@@ -248,7 +251,7 @@ def test_message_format_is_file_place_message():
 # ------------------------------------------------------- every error, one place
 #
 # Each case: edits to MINIMAL, the key path the error must name, and a piece of
-# the message.  Source of each: the brief's rule quoted in the comment above
+# the message.  Source of each: the README rule quoted in the comment above
 # the group; the expected place follows by hand from which key breaks it.
 
 CASES = [
@@ -365,12 +368,12 @@ def test_each_error_names_its_place(edits, place, fragment):
 @pytest.mark.parametrize("key", ["vt0", "gamma", "phi", "kp", "cox", "cj", "cjsw", "mj",
                                  "mjsw", "pb"])
 def test_every_required_mos_key(kind, key):
-    # Source: brief — mos.nmos and mos.pmos need all ten of these keys.
+    # Source: README tech-file reference — mos.nmos and mos.pmos need all ten of these keys.
     err = error_of(edited({f"mos.{kind}.{key}": DELETE}))
     assert (err.place, err.message) == (f"mos.{kind}.{key}", "required key is missing")
 
 
-# Source: brief — kp, cox, pb, pbsw, phi must be > 0; cj, cjsw, cjswg, cgo,
+# Source: README tech-file reference — kp, cox, pb, pbsw, phi must be > 0; cj, cjsw, cjswg, cgo,
 # gamma, area, fringe must be >= 0.  Hand reasoning: 0 breaks "> 0" only, a
 # small negative value breaks both.
 POSITIVE = ["kp", "cox", "pb", "pbsw", "phi"]
@@ -422,14 +425,14 @@ def accepted_iff(key: str, value: float, allowed: bool, read) -> None:
 @settings(max_examples=60, deadline=None)
 @given(st.floats(allow_nan=True, allow_infinity=True))
 def test_vdd_accepted_exactly_when_finite_and_positive(vdd):
-    # Source: brief — vdd <= 0 is impossible; and a supply must be a finite number.
+    # Source: README tech-file reference — vdd <= 0 is impossible; and a supply must be a finite number.
     accepted_iff("process.vdd", vdd, math.isfinite(vdd) and vdd > 0, lambda t: t.vdd)
 
 
 @settings(max_examples=60, deadline=None)
 @given(st.floats(min_value=-2, max_value=2))
 def test_grading_exponent_accepted_exactly_in_unit_interval(mj):
-    # Source: brief — mj outside [0, 1) is impossible (the SPICE depletion
+    # Source: README tech-file reference — mj outside [0, 1) is impossible (the SPICE depletion
     # charge formula divides by 1 - mj).
     accepted_iff("mos.pmos.mj", mj, 0 <= mj < 1, lambda t: t.mos["pmos"].mj)
 
@@ -437,5 +440,5 @@ def test_grading_exponent_accepted_exactly_in_unit_interval(mj):
 @settings(max_examples=60, deadline=None)
 @given(st.floats(min_value=-1, max_value=3))
 def test_guard_accepted_exactly_below_vdd(guard):
-    # Source: brief — check.guard < 0 or >= vdd is impossible (vdd = 1.2 here).
+    # Source: README tech-file reference — check.guard < 0 or >= vdd is impossible (vdd = 1.2 here).
     accepted_iff("check.guard", guard, 0 <= guard < 1.2, lambda t: t.guard)

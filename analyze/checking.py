@@ -6,10 +6,10 @@ from __future__ import annotations
 import sys
 
 from analyze.output import check_outputs, emit
-from analyze.report_json import dumps, header, stage_json
+from analyze.report_json import devices_json, dumps, findings_json, header, nets_json, stage_json
 from analyze.report_text import check_header, stage_block
 
-__all__ = ["analyse_circuit", "check_report", "check_cell", "load_run_inputs", "warn"]
+__all__ = ["analyse_circuit", "check_report", "check_text", "check_cell", "load_run_inputs", "warn"]
 
 
 def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
@@ -33,17 +33,13 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
 
 def check_report(circuit, tech, recognition, results) -> dict:
     report = header(circuit.cell, tech.vdd)
-    from analyze.report_json import devices_json, nets_json
 
     report["clock"] = {"nets": list(recognition.clocks), "inferred": recognition.clock_inferred,
                        "note": recognition.clock_note}
     report["nets"] = nets_json(circuit)
     report["devices"] = devices_json(circuit)
     report["stages"] = [stage_json(r, circuit) for r in results]
-    report["findings"] = [
-        {"message": f.message, "location_um": None if f.location_um is None else list(f.location_um)}
-        for f in list(circuit.findings) + list(recognition.findings)
-    ]
+    report["findings"] = findings_json(list(circuit.findings) + list(recognition.findings))
     report["status"] = "fail" if any(r.status == "fail" for r in results) else "pass"
     return report
 
@@ -70,6 +66,17 @@ def load_run_inputs(args, *extra_inputs):
     return tech, constraints
 
 
+def check_text(circuit, tech, recognition, results) -> str:
+    """The terminal report: header, one block per stage, the pass count."""
+    text = check_header(circuit, tech, recognition)
+    for r in results:
+        text += "\n" + stage_block(r, circuit, tech)
+    if results:
+        failed = sum(r.status == "fail" for r in results)
+        text += f"\n{len(results) - failed} of {len(results)} stages pass\n"
+    return text
+
+
 def check_cell(args) -> int:
     from extract.pipeline import extract_layout
 
@@ -77,12 +84,8 @@ def check_cell(args) -> int:
     circuit = extract_layout(args.layout, tech, args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
     report = check_report(circuit, tech, recognition, results)
-    text = check_header(circuit, tech, recognition)
-    for r in results:
-        text += "\n" + stage_block(r, circuit, tech)
+    text = check_text(circuit, tech, recognition, results)
     failed = sum(r.status == "fail" for r in results)
-    if results:
-        text += f"\n{len(results) - failed} of {len(results)} stages pass\n"
     html = None
     if getattr(args, "html", None):
         from analyze.html_report import check_html

@@ -8,22 +8,12 @@ from __future__ import annotations
 
 import sys
 
+from analyze.checking import warn
 from analyze.output import check_outputs, emit
-from analyze.report_json import devices_json, dumps, header, nets_json
+from analyze.report_json import dumps, extract_report
 from extract.techfile import load_tech
 
 __all__ = ["run_extract", "run_check", "run_compare", "run_demo"]
-
-
-def _warn(findings) -> None:
-    for f in findings:
-        sys.stderr.write(f"warning: {f.text()}\n")
-
-
-def _say(args, text: str) -> None:
-    """Human output on stdout, unless the JSON report goes there."""
-    if getattr(args, "json", None) != "-":
-        sys.stdout.write(text)
 
 
 def extract_summary(circuit, top: int = 5) -> str:
@@ -36,7 +26,7 @@ def extract_summary(circuit, top: int = 5) -> str:
     signal = [n for n in circuit.nets.values() if n.role not in ("power", "ground")]
     signal.sort(key=lambda n: (-n.cap_ff, n.name))
     if signal:
-        lines.append(f"largest node capacitances (supplies left out):")
+        lines.append("largest node capacitances (supplies left out):")
         width = max(len(n.name) for n in signal[:top])
         for n in signal[:top]:
             p = n.cap
@@ -63,11 +53,7 @@ def run_extract(args) -> int:
     circuit = extract_layout(args.layout, tech, args.cell)
     texts = {}
     if args.json:
-        report = header(circuit.cell, tech.vdd)
-        report["nets"] = nets_json(circuit)
-        report["devices"] = devices_json(circuit)
-        report["findings"] = [{"message": f.message, "location_um": f.location_um} for f in circuit.findings]
-        texts[args.json] = dumps(report)
+        texts[args.json] = dumps(extract_report(circuit, tech))
     if args.spice:
         texts[args.spice] = write_spice(circuit, tech)
     if args.spef:
@@ -76,7 +62,7 @@ def run_extract(args) -> int:
         sys.stdout.write(extract_summary(circuit))
     for path, text in texts.items():
         emit(path, text)
-    _warn(circuit.findings)
+    warn(circuit.findings)
     return 0
 
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 import sys
 
 from analyze.output import emit
-from analyze.report_json import _r, dumps, header, worst_case_json
+from analyze.report_json import dumps, flags_json, header, rounded, worst_case_json
 from analyze.report_text import fmt_loc
 
 __all__ = ["compare_cell", "compare_report", "compare_text", "read_matching_schematic"]
@@ -30,8 +30,8 @@ def _side(r) -> dict | None:
         return None
     return {
         "worst_case": worst_case_json(r.worst_case),
-        "threshold_v": _r(r.threshold_v),
-        "margin_v": _r(r.margin_v),
+        "threshold_v": rounded(r.threshold_v),
+        "margin_v": rounded(r.margin_v),
         "status": r.status,
         "counted_patterns": int(r.counted_patterns),
     }
@@ -44,11 +44,11 @@ def compare_report(cmp) -> dict:
         {
             "name": d.name,
             "schematic_name": d.schematic_name,
-            "cap_ff_pre": _r(d.cap_ff_pre),
-            "cap_ff_post": _r(d.cap_ff_post),
-            "delta_ff": _r(d.delta_ff),
-            "parts_ff_pre": {k: _r(v) for k, v in d.parts_pre.items()},
-            "parts_ff_post": {k: _r(v) for k, v in d.parts_post.items()},
+            "cap_ff_pre": rounded(d.cap_ff_pre),
+            "cap_ff_post": rounded(d.cap_ff_post),
+            "delta_ff": rounded(d.delta_ff),
+            "parts_ff_pre": {k: rounded(v) for k, v in d.parts_pre.items()},
+            "parts_ff_post": {k: rounded(v) for k, v in d.parts_post.items()},
             "grew": d.grew,
         }
         for d in cmp.nets
@@ -60,20 +60,15 @@ def compare_report(cmp) -> dict:
         stages.append(
             {
                 "dynamic_node": s.dynamic_node,
-                "droop_increase_v": None if inc is None else _r(inc),
+                "droop_increase_v": None if inc is None else rounded(inc),
                 "pre": _side(s.pre),
                 "post": _side(s.post),
                 "attribution": [
-                    {"node": a.node, "schematic_name": a.schematic_name, "delta_ff": _r(a.delta_ff),
-                     "droop_reduction_v": _r(a.droop_reduction_v)}
+                    {"node": a.node, "schematic_name": a.schematic_name, "delta_ff": rounded(a.delta_ff),
+                     "droop_reduction_v": rounded(a.droop_reduction_v)}
                     for a in s.attribution
                 ],
-                "flags": [
-                    {"node": f.node, "action": f.action, "v_final_after": _r(f.v_final_after),
-                     "location_um": None if f.location_um is None else [_r(v) for v in f.location_um],
-                     "between": list(f.between)}
-                    for f in flags
-                ],
+                "flags": flags_json(flags),
                 "flag_note": None if s.post is None else s.post.flag_note,
             }
         )

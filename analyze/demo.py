@@ -17,7 +17,7 @@ import sys
 from importlib import resources
 
 from analyze.output import write_atomic
-from analyze.report_json import devices_json, dumps, header, nets_json
+from analyze.report_json import dumps, extract_report
 
 __all__ = ["sample_path", "run"]
 
@@ -34,13 +34,12 @@ def _cells(gds: str) -> list[str]:
 
 
 def run(args) -> int:
-    from analyze.checking import analyse_circuit, check_report
+    from analyze.checking import analyse_circuit, check_report, check_text
     from analyze.comparing import compare_report, compare_text, read_matching_schematic
     from analyze.comparison import compare_circuits
     from analyze.constraints import load_constraints
     from analyze.html_report import check_html, compare_html
     from analyze.match import match_circuits
-    from analyze.report_text import check_header, stage_block
     from extract.pipeline import extract_layout
     from extract.spef_out import write_spef
     from extract.spice_out import write_spice
@@ -63,9 +62,7 @@ def run(args) -> int:
     rows, links = [], []
     for cell in _cells(gds):
         circuit = extract_layout(gds, tech, cell)
-        rep = header(cell, tech.vdd)
-        rep["nets"], rep["devices"] = nets_json(circuit), devices_json(circuit)
-        write_atomic(os.path.join(out, f"{cell}.extract.json"), dumps(rep))
+        write_atomic(os.path.join(out, f"{cell}.extract.json"), dumps(extract_report(circuit, tech)))
         write_atomic(os.path.join(out, f"{cell}.extracted.sp"), write_spice(circuit, tech))
         write_atomic(os.path.join(out, f"{cell}.extracted.spef"), write_spef(circuit, tech))
 
@@ -75,8 +72,7 @@ def run(args) -> int:
         write_atomic(os.path.join(out, f"{cell}.check.json"), dumps(check_report(circuit, tech, recognition, results)))
         write_atomic(os.path.join(out, f"{cell}.check.html"),
                      check_html(circuit, tech, recognition, results, constraints=constraints))
-        text = check_header(circuit, tech, recognition) + "".join("\n" + stage_block(r, circuit, tech) for r in results)
-        write_atomic(os.path.join(out, f"{cell}.check.txt"), text)
+        write_atomic(os.path.join(out, f"{cell}.check.txt"), check_text(circuit, tech, recognition, results))
         page = [f"{cell}.check.html"]
 
         droop_inc = ""

@@ -18,7 +18,7 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
 from analyze.output import check_outputs, emit
-from analyze.report_json import _r, dumps, header, stage_json
+from analyze.report_json import dumps, header, rounded, stage_json
 
 __all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library"]
 
@@ -179,7 +179,7 @@ def run_library(args) -> int:
     report["library"] = args.layout
     report["cells"] = [
         {"cell": o.cell, "status": o.status, "devices": o.devices,
-         "worst_margin_v": None if o.worst_margin is None else _r(o.worst_margin),
+         "worst_margin_v": None if o.worst_margin is None else rounded(o.worst_margin),
          "stages": o.stages, "error": o.error, "findings": o.findings}
         for o in outcomes
     ]

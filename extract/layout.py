@@ -244,7 +244,6 @@ def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
             return 1
         return int(rep.size)
 
-    order = []
     stack = [start]
     seen = set()
     while stack:  # post-order without recursion
@@ -260,7 +259,6 @@ def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
                 memo[name] = n
             continue
         seen.add(name)
-        order.append(name)
         for child in graph[name]:
             if child not in seen:
                 stack.append(child)

@@ -19,7 +19,7 @@ import shapely
 import shapely.errors
 
 from extract.capacitance import gate_parts, junction_parts, overlap_per_side, wire_parts
-from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
+from extract.circuit import Circuit, Device, JunctionGeometry, Net
 from extract.connectivity import Conductors, connect, name_nets
 from extract.errors import Finding, InputError
 from extract.devices import find_channels

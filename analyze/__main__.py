@@ -1,6 +1,6 @@
 """``python -m analyze`` runs the ``dynshare`` command line."""
 
-from analyze.cli import main
+from analyze.cli.main import main
 
 if __name__ == "__main__":
     raise SystemExit(main())

@@ -1,8 +1,9 @@
 import os
 import sys
 
-# Let tests import the helpers that live beside them (ngspice_run).
-sys.path.insert(0, os.path.dirname(__file__))
+# Let tests import the shared helpers in tests/helpers (ngspice_run, drawing,
+# sharing_circuits, spice_reference, browser, writer_fixtures).
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), "helpers"))
 
 
 import pytest  # noqa: E402

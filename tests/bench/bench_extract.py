@@ -26,7 +26,7 @@ TECH = os.path.join(ROOT, "sample_layouts", "dsk18.toml")
 
 CHILD = r"""
 import resource, sys, time
-from extract.pipeline import extract_layout
+from extract.layout.pipeline import extract_layout
 from extract.techfile import load_tech
 tech = load_tech(sys.argv[1])
 t = time.perf_counter()

@@ -4,9 +4,9 @@ Run ``python tests/bench/bench_html_report.py [NX NY]``; builds an NX × NY
 array of the demo ``DYN_NAND3`` (default 34 × 33, about 9 000 transistors;
 106 × 105 gives about 90 000), extracts and checks it, and prints the time
 to write the report and its size.  The report caps the drawing at
-:data:`analyze.svg_layout.MAX_SHAPES` shapes, the detailed sections at
-:data:`analyze.html_report.MAX_DETAILED` stages and the summary at
-:data:`analyze.html_report.MAX_SUMMARY` rows, so its size stays a few MB
+:data:`analyze.report.svg_layout.MAX_SHAPES` shapes, the detailed sections at
+:data:`analyze.report.html_check.MAX_DETAILED` stages and the summary at
+:data:`analyze.report.html_check.MAX_SUMMARY` rows, so its size stays a few MB
 whatever the cell.
 """
 
@@ -17,9 +17,9 @@ import sys
 import tempfile
 import time
 
-from analyze.checking import analyse_circuit
-from analyze.html_report import check_html
-from extract.pipeline import extract_layout
+from analyze.search.analysis import analyse_circuit
+from analyze.report.html_check import check_html
+from extract.layout.pipeline import extract_layout
 from extract.techfile import load_tech
 from sample_layouts.make_samples import nand3_array
 

@@ -18,7 +18,7 @@ import time
 
 from extract.circuit import Circuit, Device, Net
 
-from analyze.match import match_circuits
+from analyze.compare.match import match_circuits
 
 
 def mux(legs: int, chain: int, rename, same_gates: bool = False, seed: int = 0) -> Circuit:

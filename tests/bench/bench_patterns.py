@@ -5,7 +5,7 @@ footed domino OR of four 3-high stacks (12 inputs, 7**4 = 2401 counted
 patterns) with junctions on every node; then the same stage with one
 secondary-precharged node, on a sample of its patterns.
 
-* dynshare: :func:`analyze.analysis.iter_counted_patterns` from a cold
+* dynshare: :func:`analyze.search.analysis.iter_counted_patterns` from a cold
   start (model built, every pattern evaluated, one result per pattern;
   final voltages are solved once per distinct set of shared nodes).
 * ngspice: one level-1 transient per pattern (deck of
@@ -32,13 +32,13 @@ import tempfile
 import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-sys.path[:0] = [os.path.join(HERE, "..", "analyze"), os.path.join(HERE, ".."), os.path.join(HERE, "..", "..")]
+sys.path[:0] = [os.path.join(HERE, "..", "helpers"), os.path.join(HERE, "..", "..")]
 
-from analyze.analysis import analyze_stage, iter_counted_patterns  # noqa: E402
-from analyze.constraints import parse_constraints, stage_blocks  # noqa: E402
-from analyze.patterns import bind_blocks  # noqa: E402
-from analyze.sharing import build_model  # noqa: E402
-from analyze.worstcase import worst_case  # noqa: E402
+from analyze.search.analysis import analyze_stage, iter_counted_patterns  # noqa: E402
+from analyze.search.constraints import parse_constraints, stage_blocks  # noqa: E402
+from analyze.search.patterns import bind_blocks  # noqa: E402
+from analyze.physics.sharing import build_model  # noqa: E402
+from analyze.search.worstcase import worst_case  # noqa: E402
 from sharing_circuits import domino, make_tech, mux  # noqa: E402
 from spice_reference import spice_names, transient_deck  # noqa: E402
 

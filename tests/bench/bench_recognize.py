@@ -14,7 +14,7 @@ import time
 from extract.circuit import Circuit, Device, Net
 from extract.tech import NetRoles, Tech
 
-from analyze.recognize import find_stages
+from analyze.stages.recognize import find_stages
 
 
 def build(devices: int, tech: Tech) -> Circuit:

@@ -33,8 +33,8 @@ from writer_fixtures import (
     parse_spice,
 )
 
-from extract.pipeline import extract_layout
-from extract.spice_out import spice_net_names, supply_nets, write_spice
+from extract.layout.pipeline import extract_layout
+from extract.writers.spice import spice_net_names, supply_nets, write_spice
 from extract.techfile import load_tech
 
 pytestmark = pytest.mark.ngspice

@@ -1,0 +1,10 @@
+"""The ``dynshare`` command line.
+
+Modules: :mod:`~analyze.cli.main` (argument parsing, exit status),
+:mod:`~analyze.cli.commands` (one function per command),
+:mod:`~analyze.cli.check`, :mod:`~analyze.cli.compare`,
+:mod:`~analyze.cli.library`, :mod:`~analyze.cli.demo` (the commands' work),
+:mod:`~analyze.cli.output` (atomic writes, inputs never overwritten).
+
+May import: everything.  Nothing imports it but ``analyze.__main__``.
+"""

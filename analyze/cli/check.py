@@ -1,0 +1,89 @@
+"""The ``check`` command: extraction, stage recognition, charge-sharing
+analysis, reports and exit status."""
+
+from __future__ import annotations
+
+import sys
+
+from analyze.cli.output import check_outputs, emit
+from analyze.report.json_report import devices_json, dumps, findings_json, header, nets_json, stage_json
+from analyze.report.text import check_header, stage_block
+from analyze.search.analysis import analyse_circuit
+
+__all__ = ["check_report", "check_text", "check_cell", "load_run_inputs", "warn"]
+
+
+def check_report(circuit, tech, recognition, results) -> dict:
+    report = header(circuit.cell, tech.vdd)
+
+    report["clock"] = {"nets": list(recognition.clocks), "inferred": recognition.clock_inferred,
+                       "note": recognition.clock_note}
+    report["nets"] = nets_json(circuit)
+    report["devices"] = devices_json(circuit)
+    report["stages"] = [stage_json(r, circuit) for r in results]
+    report["findings"] = findings_json(list(circuit.findings) + list(recognition.findings))
+    report["status"] = "fail" if any(r.status == "fail" for r in results) else "pass"
+    return report
+
+
+def load_run_inputs(args, *extra_inputs):
+    """Refuse bad outputs, then read the tech file and the constraints (if
+    any) — everything is validated before any layout is read.
+
+    Returns
+    -------
+    tech : Tech
+    constraints : Constraints or None
+    """
+    from extract.techfile import load_tech
+
+    inputs = [args.layout, args.tech, args.constraints, *extra_inputs]
+    check_outputs({"--json": args.json, "--html": getattr(args, "html", None)}, inputs)
+    tech = load_tech(args.tech)
+    constraints = None
+    if args.constraints:
+        from analyze.search.constraints import load_constraints
+
+        constraints = load_constraints(args.constraints)
+    return tech, constraints
+
+
+def check_text(circuit, tech, recognition, results) -> str:
+    """The terminal report: header, one block per stage, the pass count."""
+    text = check_header(circuit, tech, recognition)
+    for r in results:
+        text += "\n" + stage_block(r, circuit, tech)
+    if results:
+        failed = sum(r.status == "fail" for r in results)
+        text += f"\n{len(results) - failed} of {len(results)} stages pass\n"
+    return text
+
+
+def check_cell(args) -> int:
+    from extract.layout.pipeline import extract_layout
+
+    tech, constraints = load_run_inputs(args)
+    circuit = extract_layout(args.layout, tech, args.cell)
+    recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
+    report = check_report(circuit, tech, recognition, results)
+    text = check_text(circuit, tech, recognition, results)
+    failed = sum(r.status == "fail" for r in results)
+    html = None
+    if getattr(args, "html", None):
+        from analyze.report.html_check import check_html
+
+        html = check_html(circuit, tech, recognition, results, constraints=constraints)
+    if args.json != "-":
+        sys.stdout.write(text)
+    emit(args.json, dumps(report))
+    if html is not None:
+        emit(args.html, html)
+    warn(list(circuit.findings) + list(recognition.findings))
+    return 1 if failed else 0
+
+
+def warn(findings) -> None:
+    """Warnings to stderr, one line each.  Called only once every output
+    is written, so that a run ending in an error prints that line alone."""
+    for f in findings:
+        sys.stderr.write(f"warning: {f.text()}\n")

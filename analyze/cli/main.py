@@ -1,0 +1,99 @@
+"""The ``dynshare`` command line.
+
+Sub-commands: ``extract``, ``check``, ``compare``, ``demo`` (see the
+README).  Exit status 0 when every stage passes, 1 when at least one stage
+fails its check, 2 for bad input or usage — then exactly one line
+``error: ...`` goes to standard error, never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from extract.errors import InputError
+
+__all__ = ["main", "build_parser"]
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with a one-line ``error:`` report and exit status 2."""
+
+    def error(self, message):  # noqa: D102
+        sys.stderr.write(f"error: {self.prog}: {message} (see {self.prog} --help)\n")
+        raise SystemExit(2)
+
+
+def _layout_args(p):
+    p.add_argument("layout", metavar="LAYOUT", help="GDSII (.gds) or OASIS (.oas) file")
+    p.add_argument("--tech", required=True, metavar="TECH", help="tech file (TOML)")
+    p.add_argument("--cell", metavar="NAME", help="cell to read (default: the single top cell)")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="dynshare",
+        description="Charge-sharing analysis of dynamic CMOS stages from layout. "
+        "Results are estimates to guide design; sign-off needs foundry-qualified "
+        "extraction and simulation.",
+    )
+    from extract.writers.numbers import tool_version
+
+    parser.add_argument("--version", action="version", version=f"dynshare {tool_version()}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    p = sub.add_parser("extract", help="devices, nets and per-net capacitance")
+    _layout_args(p)
+    p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
+    p.add_argument("--spice", metavar="OUT", help="write a SPICE subcircuit ('-' for stdout)")
+    p.add_argument("--spef", metavar="OUT", help="write SPEF with lumped net capacitance ('-' for stdout)")
+
+    p = sub.add_parser("check", help="extract, recognise dynamic stages, analyse charge sharing")
+    _layout_args(p)
+    p.add_argument("--constraints", metavar="FILE", help="input constraints (TOML)")
+    p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
+    p.add_argument("--html", metavar="OUT", help="write an HTML report")
+    p.add_argument("--all-cells", action="store_true", help="check every cell of the library LAYOUT")
+    p.add_argument("--jobs", type=int, default=1, metavar="N", help="with --all-cells: cells in N parallel processes")
+
+    p = sub.add_parser("compare", help="pre-layout (schematic) against post-layout (layout)")
+    _layout_args(p)
+    p.add_argument("--schematic", required=True, metavar="NETLIST", help="SPICE netlist of the cell")
+    p.add_argument("--constraints", metavar="FILE", help="input constraints (TOML)")
+    p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
+    p.add_argument("--html", metavar="OUT", help="write an HTML report")
+
+    p = sub.add_parser("demo", help="the whole job on the bundled sample layouts")
+    p.add_argument("--out", metavar="DIR", default="dynshare-demo", help="output folder (default ./dynshare-demo)")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    try:
+        from analyze.cli import commands
+
+        return getattr(commands, f"run_{args.command}")(args)
+    except InputError as exc:
+        sys.stdout.flush()
+        sys.stderr.write(f"error: {exc.line()}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("error: interrupted\n")
+        return 2
+    except BrokenPipeError:
+        return 0
+    except Exception as exc:  # a bug: still one line, never a traceback
+        name = getattr(args, "layout", None) or getattr(args, "command", "dynshare")
+        sys.stderr.write(f"error: {name}: internal error ({type(exc).__name__}: {exc}); please report it\n")
+        return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    raise SystemExit(main())

@@ -1,0 +1,160 @@
+"""The machine report: plain dicts in the documented JSON layout.
+
+Keys are the documented ones (README, "JSON report"); values are
+rounded to 1e-6 of their unit so that the same input gives byte-identical
+files.
+"""
+
+from __future__ import annotations
+
+import json
+
+from extract.circuit import Circuit
+from extract.writers.numbers import tool_version
+
+__all__ = [
+    "rounded",
+    "loc_json",
+    "header",
+    "nets_json",
+    "devices_json",
+    "findings_json",
+    "extract_report",
+    "worst_case_json",
+    "flags_json",
+    "stage_json",
+    "dumps",
+]
+
+
+def rounded(x: float, nd: int = 6) -> float:
+    """Round for the report (and turn -0.0 into 0.0).
+
+    >>> rounded(1 / 3), rounded(-0.0)
+    (0.333333, 0.0)
+    """
+    v = round(float(x), nd)
+    return 0.0 if v == 0 else v
+
+
+def loc_json(loc) -> list[float] | None:
+    """A location in µm as ``[x, y]``, rounded, or None.
+
+    >>> loc_json((1.23456789, 2.0)), loc_json(None)
+    ([1.234568, 2.0], None)
+    """
+    return None if loc is None else [rounded(v) for v in loc]
+
+
+def header(cell: str, vdd: float) -> dict:
+    return {"tool": "dynshare", "version": tool_version(), "cell": cell, "vdd": rounded(vdd)}
+
+
+def nets_json(circuit: Circuit) -> list[dict]:
+    out = []
+    for net in circuit.nets.values():
+        out.append(
+            {
+                "name": net.name,
+                "role": net.role,
+                "cap_ff": rounded(net.cap_ff),
+                "parts_ff": {k: rounded(v) for k, v in net.cap.as_dict().items()},
+                "location_um": loc_json(net.location_um),
+                "junctions": {
+                    t: {"area_um2": rounded(j.area_um2), "field_perimeter_um": rounded(j.field_perimeter_um),
+                        "gate_perimeter_um": rounded(j.gate_perimeter_um)}
+                    for t, j in sorted(net.junctions.items())
+                },
+            }
+        )
+    return out
+
+
+def devices_json(circuit: Circuit) -> list[dict]:
+    return [
+        {
+            "name": d.name,
+            "type": d.type,
+            "drain": d.drain,
+            "gate": d.gate,
+            "source": d.source,
+            "w_um": rounded(d.w_um),
+            "l_um": rounded(d.l_um),
+            "ad_um2": rounded(d.ad_um2),
+            "as_um2": rounded(d.as_um2),
+            "pd_um": rounded(d.pd_um),
+            "ps_um": rounded(d.ps_um),
+            "location_um": loc_json(d.location_um),
+        }
+        for d in circuit.devices
+    ]
+
+
+def worst_case_json(wc) -> dict | None:
+    if wc is None:
+        return None
+    return {
+        "inputs": {k: int(v) for k, v in sorted(wc.inputs.items())},
+        "shared_nodes": list(wc.shared_nodes),
+        "v_final": rounded(wc.v_final),
+        "v_final_linear": rounded(wc.v_final_linear),
+        "droop_v": rounded(wc.droop_v),
+    }
+
+
+def findings_json(findings) -> list[dict]:
+    """``findings[]``: each warning's message and location."""
+    return [{"message": f.message, "location_um": loc_json(f.location_um)} for f in findings]
+
+
+def extract_report(circuit: Circuit, tech) -> dict:
+    """The whole ``extract --json`` report."""
+    report = header(circuit.cell, tech.vdd)
+    report["nets"] = nets_json(circuit)
+    report["devices"] = devices_json(circuit)
+    report["findings"] = findings_json(circuit.findings)
+    return report
+
+
+def flags_json(flags) -> list[dict]:
+    """``flags[]`` of a stage (check and compare)."""
+    return [
+        {
+            "node": f.node,
+            "action": f.action,
+            "v_final_after": rounded(f.v_final_after),
+            "location_um": loc_json(f.location_um),
+            "between": list(f.between),
+        }
+        for f in flags
+    ]
+
+
+def stage_json(result, circuit: Circuit) -> dict:
+    """One entry of ``stages[]`` from an :class:`analyze.search.analysis.StageResult`."""
+    st = result.stage
+    return {
+        "dynamic_node": st.dynamic_node,
+        "polarity": st.polarity,
+        "clock": st.clock,
+        "footed": st.footed,
+        "footer": st.footer,
+        "inputs": list(st.inputs),
+        "internal_nodes": list(st.internal_nodes),
+        "keepers": list(st.keepers),
+        "receivers": [{"nmos": r.nmos, "pmos": r.pmos, "output": r.output} for r in st.receivers],
+        "secondary_precharge": dict(sorted(st.secondary_precharge.items())),
+        "location_um": loc_json(st.location_um),
+        "threshold_v": rounded(result.threshold_v),
+        "margin_v": rounded(result.margin_v),
+        "status": result.status,
+        "counted_patterns": int(result.counted_patterns),
+        "worst_case": worst_case_json(result.worst_case),
+        "flags": flags_json(result.flags),
+        "flag_note": result.flag_note,
+    }
+
+
+def dumps(report: dict) -> str:
+    """JSON text with a trailing newline, keys in insertion order."""
+    return json.dumps(report, indent=2, ensure_ascii=False) + "\n"

@@ -1,0 +1,84 @@
+"""The terminal report of ``check``: one block per stage, readable at a glance."""
+
+from __future__ import annotations
+
+from extract.circuit import Circuit
+
+__all__ = ["stage_block", "check_header", "fmt_loc"]
+
+
+def fmt_loc(loc) -> str:
+    """``(x, y)`` in µm, or ``"?"``.
+
+    >>> fmt_loc((1.0, 2.25)), fmt_loc(None)
+    ('(1.00, 2.25) um', '?')
+    """
+    if loc is None:
+        return "?"
+    return f"({loc[0]:.2f}, {loc[1]:.2f}) um"
+
+
+def check_header(circuit: Circuit, tech, recognition) -> str:
+    n = len(recognition.stages)
+    what = "no dynamic stage" if n == 0 else f"{n} dynamic stage{'s' if n != 1 else ''}"
+    lines = [f"cell {circuit.cell}  (process {tech.name}, VDD {tech.vdd:g} V): {what}"]
+    if n and recognition.clock_note:
+        lines.append(f"  clock: {recognition.clock_note}")
+    return "\n".join(lines) + "\n"
+
+
+def _pattern(inputs: dict[str, int]) -> str:
+    return " ".join(f"{k}={v}" for k, v in sorted(inputs.items())) or "(no inputs)"
+
+
+def stage_block(result, circuit: Circuit, tech) -> str:
+    """Text block for one :class:`analyze.search.analysis.StageResult`."""
+    st = result.stage
+    kind = "n-type (precharged high)" if st.polarity == "n" else "p-type (predischarged low)"
+    if st.polarity == "n":
+        foot = f"footed (footer {st.footer})" if st.footed else "footless"
+    else:
+        foot = f"footed (header {st.footer} to {st.rail})" if st.footed else "footless (no header)"
+    verdict = "PASS" if result.status == "pass" else "FAIL"
+    out = [f"stage {st.dynamic_node}: {kind}, {foot}, clock {st.clock}   [{verdict}]"]
+    out.append(f"  at            {fmt_loc(st.location_um)}")
+    out.append(f"  precharge     {' '.join(st.precharge) or '-'}")
+    out.append(f"  keepers       {' '.join(st.keepers) or 'none'}")
+    if st.receivers:
+        rx = ", ".join(f"{r.nmos}/{r.pmos} -> {r.output}" for r in st.receivers)
+    else:
+        rx = "none found (threshold taken as VDD/2)"
+    out.append(f"  receiver      {rx}")
+    out.append(f"  threshold     {result.threshold_v:.3f} V (guard {tech.guard:g} V)")
+    out.append(f"  inputs        {' '.join(st.inputs) or '-'}")
+    if st.secondary_precharge:
+        sp = ", ".join(f"{n} by {d}" for n, d in sorted(st.secondary_precharge.items()))
+        out.append(f"  precharged    {sp}")
+    wc = result.worst_case
+    if wc is None:
+        out.append(f"  worst case    no counted pattern ({result.counted_patterns} patterns keep the node)")
+    else:
+        out.append(f"  worst case    {_pattern(wc.inputs)}   ({result.counted_patterns} counted patterns)")
+        out.append("  shared nodes")
+        names = [st.dynamic_node] + list(wc.shared_nodes)
+        width = max(len(n) for n in names)
+        for name in names:
+            net = circuit.nets.get(name)
+            cap = net.cap_ff if net else 0.0
+            tag = " (dynamic node)" if name == st.dynamic_node else ""
+            tag = tag or (" (precharged)" if name in st.secondary_precharge else "")
+            loc = fmt_loc(net.location_um if net else None)
+            out.append(f"    {name:<{width}}  {cap:8.3f} fF  {loc}{tag}")
+        out.append(f"  v_final       {wc.v_final:.3f} V   (lossless estimate {wc.v_final_linear:.3f} V)")
+        out.append(f"  droop         {wc.droop_v:.3f} V")
+    sign = "+" if result.margin_v >= 0 else ""
+    out.append(f"  margin        {sign}{result.margin_v:.3f} V   {verdict}")
+    if result.flags:
+        action = "precharge" if st.polarity == "n" else "predischarge"
+        out.append(f"  fix: add {action} devices on")
+        for f in result.flags:
+            between = f" between {' and '.join(f.between)}" if f.between else ""
+            out.append(f"    {f.node:<8} {fmt_loc(f.location_um)}{between}  -> worst case {f.v_final_after:.3f} V")
+    elif result.flag_note:
+        out.append(f"  fix: {result.flag_note}")
+    return "\n".join(out) + "\n"

@@ -1,0 +1,10 @@
+"""Input patterns and the exact worst case.
+
+Modules: :mod:`~analyze.search.constraints` (the constraints file),
+:mod:`~analyze.search.patterns` (constraint blocks, enumeration, counting),
+:mod:`~analyze.search.worstcase` (brute force and branch-and-bound),
+:mod:`~analyze.search.flags` (nodes that need a precharge device),
+:mod:`~analyze.search.analysis` (the public entry points).
+
+May import: :mod:`extract`, :mod:`analyze.stages`, :mod:`analyze.physics`.
+"""

@@ -1,0 +1,282 @@
+"""Charge-sharing check of one dynamic stage: the public entry points.
+
+:func:`analyze_stage` finds the exact worst-case pattern, the receiver
+threshold, the margin, pass/fail and, for a failing stage, the nodes that
+need a precharge (predischarge) device.  :func:`evaluate_pattern` and
+:func:`iter_counted_patterns` look at single patterns.
+
+Physics (n-type; a p-type stage is the mirror image): the dynamic node
+starts at VDD, internal nodes at 0 V except those precharged; inputs are 0
+or VDD; the footer conducts.  A pattern counts when the evaluation network
+does not join the dynamic node to the rail.  ``v_final`` comes from charge
+conservation with SPICE junction depletion charge and the body-effect pass
+limit (:mod:`analyze.physics.redistribution`), ``v_final_linear`` from zero-bias
+capacitances, the threshold from the square-law inverter formula
+(:mod:`analyze.physics.threshold`).
+
+Constraints are an :class:`analyze.search.constraints.Constraints` (from
+:func:`analyze.search.constraints.load_constraints`) or None for none.
+
+Examples
+--------
+A footless domino NAND2 with linear capacitances only and no body effect
+(pass limit 1.8 − 0.45 = 1.35 V): the worst case shares n1 with X,
+30 fF · 1.8 V / 40 fF = 1.35 V; three of the four patterns count.
+
+>>> from extract.circuit import CapParts, Circuit, Device, Net
+>>> from extract.tech import MosParams, NetRoles, Tech
+>>> from analyze.stages.stage import Stage
+>>> p = dict(gamma=0.0, phi=0.8, kp=200.0, cox=8.0, cgo=0.0, cj=1.0, cjsw=0.2,
+...          cjswg=0.2, mj=0.5, mjsw=0.33, pb=0.8, pbsw=0.8)
+>>> tech = Tech("t", 1.8, NetRoles(), {}, {"nmos": MosParams("nmos", 0.45, **p),
+...                                         "pmos": MosParams("pmos", -0.45, **p)})
+>>> nets = {n: Net(n, cap=CapParts(wire=c)) for n, c in [("X", 30.0), ("n1", 10.0)]}
+>>> devs = [Device("MA", "nmos", "X", "A", "n1", 1.0, 0.18),
+...         Device("MB", "nmos", "n1", "B", "VSS", 1.0, 0.18)]
+>>> st = Stage("X", "n", "CLK", "VDD", "VSS", (), ("MA", "MB"), None, None, ("A", "B"), ("n1",))
+>>> circuit = Circuit("nand2", nets, devs)
+>>> r = analyze_stage(circuit, st, tech)
+>>> r.worst_case.inputs, round(r.worst_case.v_final, 6), r.counted_patterns, r.status
+({'A': 1, 'B': 0}, 1.35, 3, 'pass')
+>>> evaluate_pattern(circuit, st, tech, {"A": 1, "B": 1}) is None
+True
+>>> [w.inputs for w in iter_counted_patterns(circuit, st, tech, limit=2)]
+[{'A': 0, 'B': 0}, {'A': 0, 'B': 1}]
+>>> find_worst_case(circuit, st, tech).shared_nodes
+['n1']
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Iterator
+
+from analyze.search.constraints import Constraints, check_constraints_apply, stage_blocks
+from analyze.search.flags import Flag, find_flags
+from analyze.search.patterns import bind_blocks, count_counted, iter_counted
+from analyze.physics.sharing import SharingModel, WorstCase, build_model
+from analyze.stages.recognize import find_stages
+from analyze.stages.stage import Stage
+from analyze.physics.threshold import receiver_threshold
+from analyze.search.worstcase import worst_case
+from extract.circuit import Circuit
+from extract.tech import Tech
+
+__all__ = [
+    "WorstCase",
+    "Flag",
+    "StageResult",
+    "analyze_stage",
+    "analyse_circuit",
+    "find_worst_case",
+    "evaluate_pattern",
+    "iter_counted_patterns",
+]
+
+
+@dataclass
+class StageResult:
+    """The check of one stage.
+
+    Attributes
+    ----------
+    stage : Stage
+    threshold_v : float
+        Receiver switching threshold, V.
+    margin_v : float
+        ``v_final − threshold_v`` (n-type) or ``threshold_v − v_final``
+        (p-type), V.
+    status : str
+        ``"fail"`` when ``margin_v < tech.guard``, else ``"pass"``.
+    worst_case : WorstCase or None
+        None when no allowed pattern counts; the margin is then taken with
+        the dynamic node at its starting level (VDD, or 0 V for p-type).
+    flags : list of Flag
+    flag_note : str or None
+    counted_patterns : int
+        Number of counted patterns the constraints allow.
+    """
+
+    stage: Stage
+    threshold_v: float
+    margin_v: float
+    status: str
+    worst_case: WorstCase | None
+    flags: list[Flag] = field(default_factory=list)
+    flag_note: str | None = None
+    counted_patterns: int = 0
+
+
+def _prepared(circuit, stage, tech, constraints, precharged):
+    model = build_model(circuit, stage, tech, precharged)
+    return model, bind_blocks(model, stage_blocks(constraints, model.inputs))
+
+
+def analyze_stage(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    *,
+    precharged=frozenset(),
+) -> StageResult:
+    """Check ``stage`` for charge sharing.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    stage : Stage
+    tech : Tech
+    constraints : Constraints or None
+    precharged : iterable of str
+        Internal nodes to treat as precharged (predischarged) in addition
+        to the stage's own secondary precharge.
+
+    Returns
+    -------
+    StageResult
+
+    Notes
+    -----
+    Worst case by :func:`analyze.search.worstcase.worst_case`, count by
+    :func:`analyze.search.patterns.count_counted`, flags by
+    :func:`analyze.search.flags.find_flags` (failing stages only).
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, precharged)
+    threshold = receiver_threshold(circuit, stage, tech)
+    found = worst_case(model, choices)
+    wc = None if found is None else model.outcome(found.values, found.component)
+    v = model.to_volts(model.vdd) if wc is None else wc.v_final
+    n_type = stage.polarity == "n"
+    margin = v - threshold if n_type else threshold - v
+    status = "fail" if margin < tech.guard else "pass"
+    flags, note = [], None
+    if status == "fail":
+        need = threshold + tech.guard if n_type else tech.vdd - threshold + tech.guard
+        flags, note = find_flags(circuit, model, choices, need)
+    return StageResult(
+        stage=stage,
+        threshold_v=threshold,
+        margin_v=margin,
+        status=status,
+        worst_case=wc,
+        flags=flags,
+        flag_note=note,
+        counted_patterns=count_counted(model, choices),
+    )
+
+
+def find_worst_case(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    *,
+    precharged=frozenset(),
+) -> WorstCase | None:
+    """The exact worst case alone (no threshold, count or flags).
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    constraints : Constraints or None
+    precharged : iterable of str
+
+    Returns
+    -------
+    WorstCase or None
+        None when no allowed pattern counts.
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, precharged)
+    found = worst_case(model, choices)
+    return None if found is None else model.outcome(found.values, found.component)
+
+
+def _values(model: SharingModel, inputs: dict[str, int]) -> tuple[int, ...]:
+    missing = [n for n in model.inputs if n not in inputs]
+    if missing:
+        raise ValueError(f"no value for input {missing[0]!r}")
+    bad = [n for n in model.inputs if inputs[n] not in (0, 1)]
+    if bad:
+        raise ValueError(f"input {bad[0]!r} must be 0 or 1")
+    return tuple(int(inputs[n]) for n in model.inputs)
+
+
+def evaluate_pattern(
+    circuit: Circuit, stage: Stage, tech: Tech, inputs: dict[str, int], *, precharged=frozenset()
+) -> WorstCase | None:
+    """What one input pattern does to the dynamic node.
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    inputs : dict of str to int
+        A value (0 or 1) for every stage input; other keys are ignored.
+    precharged : iterable of str
+
+    Returns
+    -------
+    WorstCase or None
+        None when the pattern joins the dynamic node to the rail.
+
+    Raises
+    ------
+    ValueError
+        When an input has no value or a value other than 0 or 1.
+    """
+    model = build_model(circuit, stage, tech, precharged)
+    values = _values(model, inputs)
+    comp, tied = model.component(model.conducting(values))
+    return None if tied else model.outcome(values, comp)
+
+
+def iter_counted_patterns(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    limit: int | None = None,
+) -> Iterator[WorstCase]:
+    """Every counted pattern the constraints allow, with its result.
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    constraints : Constraints or None
+    limit : int or None
+        Stop after this many.
+
+    Yields
+    ------
+    WorstCase
+
+    Notes
+    -----
+    Order of :func:`analyze.search.patterns.iter_counted` (constraint blocks by
+    first input, options lexicographic, last block fastest).  Patterns are
+    evaluated in vectorised chunks and final voltages cached per set of
+    shared nodes (and, where discharged and precharged nodes share, per
+    set of conducting node pairs among them).
+    """
+    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
+    if limit is not None and limit <= 0:
+        return
+    for k, (values, comp) in enumerate(iter_counted(model, choices), start=1):
+        yield model.outcome(values, comp)
+        if limit is not None and k >= limit:
+            return
+
+
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
+    """Recognise the stages of ``circuit`` and analyse each one.
+
+    Returns
+    -------
+    recognition : analyze.stages.recognize.Recognition
+    results : list of StageResult
+    """
+    recognition = find_stages(circuit, tech)
+    if constraints is not None:
+        check_constraints_apply(constraints, recognition.stages, constraints_path)
+    results = [analyze_stage(circuit, st, tech, constraints) for st in recognition.stages]
+    return recognition, results

@@ -1,0 +1,340 @@
+"""Indices over a circuit's devices, for recognising circuit structures.
+
+A :class:`Topology` answers, in constant or near-constant time, the
+questions that stage recognition and clock inference ask many times:
+which devices of a type have a channel terminal on a net, which devices a
+net gates, which devices hang from a supply rail onto a net, and which
+nets are joined by channels of one device type (its channel-connected
+components).  A :class:`Side` names the device types and rails of one
+polarity of dynamic stage, so every rule is written once for both.
+
+Units: µm (locations only).
+"""
+
+from __future__ import annotations
+
+from collections import Counter, defaultdict, deque
+from dataclasses import dataclass
+
+from extract.circuit import Circuit, Device
+from extract.tech import Tech
+
+from analyze.stages.stage import Receiver
+
+__all__ = ["Side", "N_SIDE", "P_SIDE", "SIDES", "Component", "Topology"]
+
+
+@dataclass(frozen=True)
+class Side:
+    """The device types and rails of one polarity of dynamic stage.
+
+    Parameters
+    ----------
+    polarity : str
+        ``"n"`` (precharged high) or ``"p"`` (predischarged low).
+    eval_type : str
+        Device type of the evaluation network (and of the footer).
+    pull_type : str
+        Device type of the precharge devices and keepers.
+    supply_role : str
+        Role of the net the dynamic node is precharged from.
+    rail_role : str
+        Role of the net the evaluation network discharges towards.
+    precharge_word, footer_word : str
+        What the trade calls the two clocked devices, for messages.
+    """
+
+    polarity: str
+    eval_type: str
+    pull_type: str
+    supply_role: str
+    rail_role: str
+    precharge_word: str
+    footer_word: str
+
+
+#: n-type stage: pmos precharge from power, nmos evaluation to ground.
+N_SIDE = Side("n", "nmos", "pmos", "power", "ground", "precharge", "footer")
+#: p-type stage: nmos predischarge from ground, pmos evaluation to power.
+P_SIDE = Side("p", "pmos", "nmos", "ground", "power", "predischarge", "header")
+SIDES = (N_SIDE, P_SIDE)
+
+_RAILS = ("power", "ground")
+
+
+@dataclass
+class Component:
+    """One channel-connected component of one device type.
+
+    Nets are joined by the channels of the component's devices; supply
+    rails are never joined through (a device with a terminal on a rail
+    belongs to the component of its other terminal).
+
+    Attributes
+    ----------
+    nets : list of str
+        Non-rail nets of the component.
+    devices : list of int
+        Indices into ``Topology.devices``.
+    gate_count : Counter
+        Number of the component's devices gated by each net.
+    rail_by_gate : dict of str to list of int
+        The component's devices with a terminal on a rail, by gate net.
+    """
+
+    nets: list[str]
+    devices: list[int]
+    gate_count: Counter
+    rail_by_gate: dict[str, list[int]]
+
+    @property
+    def touches_rail(self) -> bool:
+        return bool(self.rail_by_gate)
+
+
+class Topology:
+    """Terminal indices of a circuit.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    tech : Tech
+        Used for the role of a net that ``circuit.nets`` does not list or
+        lists as ``"signal"`` (names compared case-blind, as SPICE does).
+
+    Notes
+    -----
+    Building costs O(devices); every index is a dict of lists.
+    Components are computed per device type on first use with a
+    union-find, O(devices · α).
+
+    Examples
+    --------
+    >>> from extract.circuit import Circuit, Device, Net
+    >>> from extract.tech import NetRoles, Tech
+    >>> tech = Tech("t", 1.8, NetRoles(("VDD",), ("VSS",), ("CLK",)), {}, {})
+    >>> c = Circuit("inv", {}, [Device("MN", "nmos", "Y", "A", "VSS", 1, 0.2),
+    ...                         Device("MP", "pmos", "Y", "A", "VDD", 2, 0.2)])
+    >>> t = Topology(c, tech)
+    >>> [r.output for r in t.receivers("A")]
+    ['Y']
+    >>> [t.devices[i].name for i in t.attached("pmos", "power", "Y")]
+    ['MP']
+    """
+
+    def __init__(self, circuit: Circuit, tech: Tech):
+        self.circuit = circuit
+        self.tech = tech
+        self.devices: list[Device] = list(circuit.devices)
+        self._roles = self._special_roles(circuit, tech)
+        self._rails = {n for n, r in self._roles.items() if r in _RAILS}
+        self.gates: dict[str, list[int]] = defaultdict(list)
+        self._channels: dict[str, dict[str, list[int]]] = {
+            "nmos": defaultdict(list),
+            "pmos": defaultdict(list),
+        }
+        self._attached: dict[tuple[str, str], dict[str, list[int]]] = defaultdict(
+            lambda: defaultdict(list)
+        )
+        self._components: dict[str, tuple[dict[str, int], list[Component]]] = {}
+        self._rail_end: list[tuple[str, str] | None] = []
+        for i, d in enumerate(self.devices):
+            self.gates[d.gate].append(i)
+            chan = self._channels.setdefault(d.type, defaultdict(list))
+            chan[d.drain].append(i)
+            if d.source != d.drain:
+                chan[d.source].append(i)
+            hit = self._find_rail_end(d)
+            self._rail_end.append(hit)
+            if hit is not None:
+                role, other = hit
+                self._attached[(d.type, role)][other].append(i)
+
+    # -- roles -----------------------------------------------------------
+    @staticmethod
+    def _special_roles(circuit: Circuit, tech: Tech) -> dict[str, str]:
+        """Every net whose role is not ``"signal"``."""
+        by_upper = {}
+        for role, names in (("clock", tech.nets.clock), ("ground", tech.nets.ground), ("power", tech.nets.power)):
+            by_upper.update({n.upper(): role for n in names})
+        names = set(circuit.nets)
+        for d in circuit.devices:
+            names.update((d.drain, d.gate, d.source))
+        out = {}
+        for n in names:
+            net = circuit.nets.get(n)
+            r = net.role if net is not None and net.role != "signal" else by_upper.get(n.upper(), "signal")
+            if r != "signal":
+                out[n] = r
+        return out
+
+    def role(self, net: str) -> str:
+        """Role of a net: from the circuit, else from the tech file."""
+        return self._roles.get(net, "signal")
+
+    def is_rail(self, net: str) -> bool:
+        return net in self._rails
+
+    def _find_rail_end(self, d: Device) -> tuple[str, str] | None:
+        rd, rs = d.drain in self._rails, d.source in self._rails
+        if rd and not rs:
+            return self._roles[d.drain], d.source
+        if rs and not rd:
+            return self._roles[d.source], d.drain
+        return None
+
+    def rail_end(self, d: Device | int) -> tuple[str, str] | None:
+        """``(role, other net)`` when exactly one channel terminal of a
+        device (or device index) is on a rail and the other is not; else
+        None."""
+        if isinstance(d, int):
+            return self._rail_end[d]
+        return self._find_rail_end(d)
+
+    def rail_net(self, d: Device) -> str:
+        """The rail terminal of a device with one (see :meth:`rail_end`)."""
+        return d.drain if self.is_rail(d.drain) else d.source
+
+    # -- indices ---------------------------------------------------------
+    def channels(self, dtype: str, net: str) -> list[int]:
+        """Devices of ``dtype`` with a channel terminal on ``net``."""
+        return self._channels.get(dtype, {}).get(net, [])
+
+    def attached(self, dtype: str, role: str, net: str) -> list[int]:
+        """Devices of ``dtype`` from a rail of ``role`` to ``net``."""
+        return self._attached[(dtype, role)].get(net, [])
+
+    def attached_nets(self, dtype: str, role: str) -> list[str]:
+        """Every non-rail net that some ``dtype`` device joins to a rail of
+        ``role``, sorted."""
+        return sorted(self._attached[(dtype, role)])
+
+    def names(self, indices) -> tuple[str, ...]:
+        """Sorted device names."""
+        return tuple(sorted(self.devices[i].name for i in indices))
+
+    def location(self, net: str | None = None, device: int | None = None):
+        """A layout point for a device (preferred) or a net, or None."""
+        if device is not None and self.devices[device].location_um is not None:
+            return self.devices[device].location_um
+        n = self.circuit.nets.get(net) if net is not None else None
+        return n.location_um if n is not None else None
+
+    def receivers(self, net: str) -> list[Receiver]:
+        """Static inverters whose input is ``net``, sorted by output.
+
+        A receiver is an nmos gated by ``net`` from ground to Y together
+        with a pmos gated by ``net`` from power to the same Y.
+        """
+        down: dict[str, list[str]] = defaultdict(list)
+        up: dict[str, list[str]] = defaultdict(list)
+        for i in self.gates.get(net, []):
+            d = self.devices[i]
+            hit = self._rail_end[i]
+            if hit is None or hit[1] == net:
+                continue
+            if d.type == "nmos" and hit[0] == "ground":
+                down[hit[1]].append(d.name)
+            elif d.type == "pmos" and hit[0] == "power":
+                up[hit[1]].append(d.name)
+        return [
+            Receiver(nmos=min(down[y]), pmos=min(up[y]), output=y)
+            for y in sorted(set(down) & set(up))
+        ]
+
+    # -- channel-connected components -------------------------------------
+    def component_of(self, dtype: str, net: str) -> Component | None:
+        """The ``dtype`` channel-connected component containing ``net``."""
+        index, comps = self._components_of(dtype)
+        k = index.get(net)
+        return None if k is None else comps[k]
+
+    def _components_of(self, dtype: str):
+        if dtype not in self._components:
+            self._components[dtype] = self._build_components(dtype)
+        return self._components[dtype]
+
+    def _build_components(self, dtype: str):
+        parent: dict[str, str] = {}
+
+        def find(a: str) -> str:
+            root = a
+            while parent[root] != root:
+                root = parent[root]
+            while parent[a] != root:
+                parent[a], a = root, parent[a]
+            return root
+
+        members = [i for i, d in enumerate(self.devices) if d.type == dtype]
+        for i in members:
+            d = self.devices[i]
+            ends = [n for n in (d.drain, d.source) if not self.is_rail(n)]
+            for n in ends:
+                parent.setdefault(n, n)
+            if len(ends) == 2:
+                ra, rb = find(ends[0]), find(ends[1])
+                if ra != rb:
+                    parent[ra] = rb
+        index: dict[str, int] = {}
+        comps: list[Component] = []
+        for n in parent:
+            r = find(n)
+            if r not in index:
+                index[r] = len(comps)
+                comps.append(Component([], [], Counter(), defaultdict(list)))
+            index[n] = index[r]
+            comps[index[r]].nets.append(n)
+        for i in members:
+            d = self.devices[i]
+            ends = [n for n in (d.drain, d.source) if not self.is_rail(n)]
+            if not ends:
+                continue
+            c = comps[index[ends[0]]]
+            c.devices.append(i)
+            c.gate_count[d.gate] += 1
+            if len(ends) == 1:
+                c.rail_by_gate[d.gate].append(i)
+        return index, comps
+
+    def reach(self, start: str, dtype: str, stops: tuple[set[str], ...], skip: set[int]):
+        """Breadth-first search through ``dtype`` channels from ``start``.
+
+        Parameters
+        ----------
+        start : str
+        dtype : str
+        stops : tuple of set of str
+            Nets that are reached but not gone through (rails are always;
+            ``start`` never is).
+        skip : set of int
+            Devices not to go through.
+
+        Returns
+        -------
+        nets : dict of str to int
+            Every net reached, with its distance in devices from ``start``.
+        devices : list of int
+            Devices with a terminal on a net gone through, in search order.
+
+        Notes
+        -----
+        O(nets + devices reached).
+        """
+        dist = {start: 0}
+        seen: set[int] = set()
+        found: list[int] = []
+        queue = deque([start])
+        while queue:
+            net = queue.popleft()
+            if net != start and (self.is_rail(net) or any(net in st for st in stops)):
+                continue
+            for i in self.channels(dtype, net):
+                if i in skip or i in seen:
+                    continue
+                seen.add(i)
+                found.append(i)
+                other = self.devices[i].other_terminal(net)
+                if other is not None and other not in dist:
+                    dist[other] = dist[net] + 1
+                    queue.append(other)
+        return dist, found

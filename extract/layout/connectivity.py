@@ -1,0 +1,236 @@
+"""Connectivity: which conductor shapes form one net, and the net names.
+
+Conductors are the source/drain pieces of every diffusion layer and the
+merged shapes of every poly and metal layer.  A ``cut`` shape joins every
+conductor of its ``joins`` layers that it overlaps (with positive area).
+Nets are the connected components of that conductor–cut graph.
+
+Naming: text labels on a layer listed in that layer's ``labels`` name the
+conductor they sit on (a point on the boundary counts).  Rules, all
+deterministic:
+
+- Two different label texts on one net: the net keeps the one that sorts
+  first (supply, ground and clock names from the tech file are preferred
+  over signal names) and a finding names both.
+- The same text on unconnected nets: supply, ground and clock nets with
+  the same name are one net (they are joined outside the cell); any other
+  repeated name keeps the bare name on the net whose point comes first
+  (lowest y, then x) and ``NAME_2``, ``NAME_3``, ... on the others, with
+  one finding.
+- Unlabelled nets are called ``net1``, ``net2``, ... in order of their
+  point (lowest y, then x), skipping names already used.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import shapely
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+
+from extract.errors import Finding
+from extract.layout.reader import FlatLabel
+
+__all__ = ["Conductors", "connect", "name_nets"]
+
+
+@dataclass
+class Conductors:
+    """All conductor shapes of a cell, in one indexable array.
+
+    Attributes
+    ----------
+    geoms : ndarray of Polygon
+    layer : ndarray of str
+        The tech layer each shape is on.
+    points : ndarray (n, 2)
+        A point inside each shape.
+    """
+
+    geoms: np.ndarray
+    layer: np.ndarray
+    points: np.ndarray
+
+    def of_layer(self, name: str) -> np.ndarray:
+        return np.flatnonzero(self.layer == name)
+
+
+def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]]]) -> np.ndarray:
+    """Net index of every conductor.
+
+    Parameters
+    ----------
+    conductors : Conductors
+    cuts : list of (ndarray of Polygon, tuple of str)
+        Each cut layer's shapes and the layers it joins.
+
+    Returns
+    -------
+    ndarray of int
+        ``net[i]`` for conductor ``i``; numbers are 0..k-1 in order of
+        first appearance.
+
+    Notes
+    -----
+    One STR-tree query per (cut layer, joined layer) and a sparse
+    connected-components pass: O((n + c) log n).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from shapely import box
+    >>> c = Conductors(np.array([box(0, 0, 1, 1), box(0, 0, 1, 1), box(5, 5, 6, 6)]),
+    ...                np.array(["m1", "m2", "m1"]), np.zeros((3, 2)))
+    >>> connect(c, [(np.array([box(0.2, 0.2, 0.4, 0.4)]), ("m1", "m2"))]).tolist()
+    [0, 0, 1]
+    >>> connect(c, []).tolist()
+    [0, 1, 2]
+    """
+    n = len(conductors.geoms)
+    rows: list[np.ndarray] = []
+    cols: list[np.ndarray] = []
+    offset = n
+    for cut_geoms, joins in cuts:
+        if len(cut_geoms) == 0:
+            continue
+        for layer in joins:
+            idx = conductors.of_layer(layer)
+            if len(idx) == 0:
+                continue
+            tree = shapely.STRtree(conductors.geoms[idx])
+            ci, gi = tree.query(cut_geoms, predicate="intersects")
+            if len(ci) == 0:
+                continue
+            overlap = shapely.area(shapely.intersection(cut_geoms[ci], conductors.geoms[idx][gi]))
+            keep = overlap > 0
+            rows.append(ci[keep] + offset)
+            cols.append(idx[gi[keep]])
+        offset += len(cut_geoms)
+    size = offset
+    if rows:
+        r = np.concatenate(rows)
+        c = np.concatenate(cols)
+    else:
+        r = c = np.empty(0, dtype=np.intp)
+    graph = coo_matrix((np.ones(len(r)), (r, c)), shape=(size, size))
+    _, labels = connected_components(graph, directed=False)
+    labels = labels[:n]
+    # renumber in order of first appearance for determinism
+    _, first = np.unique(labels, return_index=True)
+    order = np.argsort(first)
+    remap = np.empty(len(order), dtype=np.intp)
+    remap[np.unique(labels)[order]] = np.arange(len(order))
+    return remap[labels] if n else labels
+
+
+def _labels_on_conductors(conductors, labels, label_layers):
+    """(net-less) conductor index for each usable label, plus findings."""
+    hits: list[tuple[int, str]] = []
+    findings: list[Finding] = []
+    by_layer: dict[str, list[FlatLabel]] = {}
+    for lab in labels:
+        for layer_name, pairs in label_layers.items():
+            if lab.layer in pairs:
+                by_layer.setdefault(layer_name, []).append(lab)
+    for layer_name, labs in by_layer.items():
+        idx = conductors.of_layer(layer_name)
+        pts = shapely.points([(lab.x, lab.y) for lab in labs])
+        if len(idx):
+            tree = shapely.STRtree(conductors.geoms[idx])
+            li, gi = tree.query(pts, predicate="intersects")
+        else:
+            li = gi = np.empty(0, dtype=np.intp)
+        found = np.zeros(len(labs), dtype=bool)
+        found[li] = True
+        for k, g in zip(li.tolist(), gi.tolist()):
+            hits.append((int(idx[g]), labs[k].text))
+        for k in np.flatnonzero(~found):
+            lab = labs[k]
+            findings.append(Finding(f"label {lab.text!r} is not on a {layer_name} shape; ignored", (lab.x, lab.y)))
+    return hits, findings
+
+
+def name_nets(net_of, conductors, labels, label_layers, role_of, net_points):
+    """Name every net.
+
+    Parameters
+    ----------
+    net_of : ndarray of int
+        From :func:`connect`.
+    conductors : Conductors
+    labels : list of FlatLabel
+    label_layers : dict of str to set of (int, int)
+        Tech layer name -> the label ``(layer, texttype)`` pairs it takes.
+    role_of : callable
+        Net name -> role ("power", "ground", "clock", "signal").
+    net_points : ndarray (k, 2)
+        A point per net, for ordering and messages.
+
+    Returns
+    -------
+    names : list of str
+        ``names[k]`` for net ``k``; nets that share a name are one net.
+    label_texts : list of tuple of str
+        Every label text seen on net ``k``.
+    findings : list of Finding
+    """
+    k_nets = len(net_points)
+    hits, findings = _labels_on_conductors(conductors, labels, label_layers)
+    texts: list[set[str]] = [set() for _ in range(k_nets)]
+    for cond, text in hits:
+        texts[net_of[cond]].add(text)
+
+    def preference(text):
+        return (role_of(text) == "signal", text)
+
+    chosen: list[str | None] = [None] * k_nets
+    for k in range(k_nets):
+        if texts[k]:
+            ordered = sorted(texts[k], key=preference)
+            chosen[k] = ordered[0]
+            if len(ordered) > 1:
+                x, y = net_points[k]
+                findings.append(
+                    Finding(
+                        "labels " + ", ".join(repr(t) for t in ordered) + f" are on one net; it is named {ordered[0]!r}",
+                        (float(x), float(y)),
+                    )
+                )
+    order = sorted(range(k_nets), key=lambda k: (round(net_points[k][1], 6), round(net_points[k][0], 6), k))
+    names: list[str] = [""] * k_nets
+    used: set[str] = set()
+    by_text: dict[str, list[int]] = {}
+    for k in order:
+        if chosen[k] is not None:
+            by_text.setdefault(chosen[k], []).append(k)
+    for text, nets in sorted(by_text.items()):
+        if role_of(text) != "signal" or len(nets) == 1:
+            for k in nets:
+                names[k] = text
+            used.add(text)
+            continue
+        names[nets[0]] = text
+        used.add(text)
+        suffix = 2
+        for k in nets[1:]:
+            while f"{text}_{suffix}" in used or f"{text}_{suffix}" in by_text:
+                suffix += 1
+            names[k] = f"{text}_{suffix}"
+            used.add(names[k])
+            suffix += 1
+        x, y = net_points[nets[0]]
+        findings.append(
+            Finding(f"label {text!r} names {len(nets)} unconnected nets; the others are {text}_2 onwards", (float(x), float(y)))
+        )
+    counter = 1
+    for k in order:
+        if names[k]:
+            continue
+        while f"net{counter}" in used or f"net{counter}" in by_text:
+            counter += 1
+        names[k] = f"net{counter}"
+        used.add(names[k])
+        counter += 1
+    return names, [tuple(sorted(t)) for t in texts], findings

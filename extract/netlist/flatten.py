@@ -1,0 +1,419 @@
+"""Elaborate a parsed netlist into a flat circuit.
+
+Evaluates parameters, flattens subcircuit instances, splits ``M=`` and
+``NF=`` into separate devices, estimates missing source/drain geometry and
+computes every net's zero-bias capacitance.  :func:`extract.netlist.reader.read_schematic`
+is the public entry; this module is its second half.
+
+Conventions
+-----------
+Units
+    SPICE values are SI: W, L, PD, PS in metres (``1u`` = 1 µm), AD, AS
+    in m² (``1p`` = 1 µm²), C in farads (``1f`` = 1 fF).  They are stored
+    in µm, µm², fF.  A length above 1 mm (or an area above 1 mm²) is taken
+    for a unit mistake (``W=1`` is one metre in SPICE) and rejected, and so
+    is a capacitor above 1 nF (``1.3`` is 1.3 F, not 1.3 fF).
+Parameters
+    Global ``.param`` first; then, per instance, the subcircuit's defaults
+    (from its ``.subckt`` line) unless the ``X`` line overrides them (an
+    override is evaluated where the ``X`` line is), then the subcircuit's
+    local ``.param`` cards in order.
+Multiplier and fingers
+    ``M=m`` is m separate devices of the full W, each with the AD/AS/PD/PS
+    given.  ``NF=k`` is k fingers of ``W/k``, each with 1/k of AD/AS/PD/PS
+    (which are the device's totals, as BSIM4 reads them).  Together they
+    make ``m·k`` devices named ``Mname.1`` ... ``Mname.{m·k}`` (just
+    ``Mname`` when there is one), which is how a layout extractor sees
+    fingers: one device per finger.  ``M=k`` on an ``X`` line makes k copies
+    ``Xname.1/`` ... (unless the subcircuit declares a parameter ``m``).
+Junction estimates (``[prelayout]``)
+    On a contacted node a missing AD (AS) is ``W × contacted_length`` and
+    a missing PD (PS) is ``2·W + 2·contacted_length`` (field edges
+    ``W + 2·contacted_length`` plus the gate edge ``W``), W the whole device width
+    before the NF split.  An internal stack node is one strip of
+    diffusion ``W × uncontacted_length`` between two gates, shared by the
+    two series devices, so each of its two terminals carries half of it:
+    AD = ``W·uncontacted_length/2`` and PD = ``W + uncontacted_length``
+    (its own gate edge W plus one of the strip's two field edges).
+    An internal stack node is a net that
+    is not a port, not a supply, not a gate, and touched by exactly two
+    channel terminals of devices of one type, counted per M line (before
+    M/NF are expanded).  Each of the four values is estimated on its own.
+Capacitor lines
+    A C line is the designer's wire estimate: its value is added to the
+    ``wire`` part of each terminal that is not a supply or ground net
+    (node ``0`` is ground).  A capacitor between two signal nets is added
+    to both, as if each other end were held still: conservative for the
+    internal nodes that share charge.  Coupling noise is not modelled.  A
+    capacitor with both ends on one net, or only on supplies, is ignored
+    (with a finding).
+Bulk
+    The bulk terminal is not used: the type comes from the model, and the
+    body is taken at the rail.
+
+Notes
+-----
+One recursive walk over the instance tree; every element is visited once
+per instance, so the cost is linear in the flattened size.
+"""
+
+from __future__ import annotations
+
+from collections import Counter, defaultdict
+from dataclasses import dataclass
+
+from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
+from extract.errors import Finding, InputError
+from extract.capacitance import gate_parts, junction_parts, overlap_per_side
+from extract.netlist.library import Library, Subckt
+from extract.netlist.expressions import ExpressionError, value_of
+from extract.tech import Tech
+
+__all__ = ["flatten", "terminal_junction"]
+
+_MOS_KEYS = {"w": 1e6, "l": 1e6, "ad": 1e12, "as": 1e12, "pd": 1e6, "ps": 1e6}
+_MAX_LENGTH_UM = 1000.0
+_MAX_COUNT = 100_000
+
+
+@dataclass
+class _Mos:
+    """One M line of one instance, before the M/NF split."""
+
+    name: str
+    type: str
+    model: str
+    d: str
+    g: str
+    s: str
+    w: float
+    l: float
+    given: dict[str, float | None]
+    count: int
+    nf: int
+
+
+def terminal_junction(w_um: float, area_um2: float, perimeter_um: float) -> JunctionGeometry:
+    """Junction geometry of one source/drain terminal from SPICE AD/PD.
+
+    Parameters
+    ----------
+    w_um : float
+        Device (finger) width: the terminal's edge along the gate.
+    area_um2 : float
+        AD (or AS).
+    perimeter_um : float
+        PD (or PS), gate edge included (SPICE level-1 convention).
+
+    Returns
+    -------
+    JunctionGeometry
+        ``gate_perimeter = W`` and ``field_perimeter = PD − W``.  When a
+        netlist gives ``PD < W`` (e.g. ``AD=0 PD=0`` for a diffusion
+        counted on another device) the gate edge is limited to PD and the
+        field edge to zero, so the total perimeter stays PD, as level 1
+        sees it.
+
+    Examples
+    --------
+    >>> terminal_junction(1.0, 0.48, 2.96)
+    JunctionGeometry(area_um2=0.48, field_perimeter_um=1.96, gate_perimeter_um=1.0)
+    >>> terminal_junction(1.0, 0.0, 0.0)
+    JunctionGeometry(area_um2=0.0, field_perimeter_um=0.0, gate_perimeter_um=0.0)
+    """
+    gate = min(w_um, perimeter_um)
+    return JunctionGeometry(area_um2, perimeter_um - gate, gate)
+
+
+def _to_um(value: float, factor: float) -> float:
+    """SI to µm/µm²/fF, rounded to 12 significant digits so that ``0.2u``
+    is 0.2 µm and not 0.19999999999999998."""
+    return float(f"{value * factor:.12g}")
+
+
+def _scaled(parts, factor: float):
+    """A CapParts or JunctionGeometry with every field times ``factor``."""
+    return type(parts)(*(v * factor for v in vars(parts).values()))
+
+
+class _Builder:
+    def __init__(self, lib: Library, tech: Tech, path: str):
+        self.lib, self.tech, self.path = lib, tech, path
+        self.names: dict[str, str] = {}
+        self.mos: list[_Mos] = []
+        self.wire: dict[str, float] = defaultdict(float)
+        self.ignored: dict[str, set[str]] = defaultdict(set)
+        self.findings: list[Finding] = list(lib.findings)
+        self.ground = tech.nets.ground[0] if tech.nets.ground else "0"
+        self.models = self._models()
+        self.global_scope: dict[str, float] = {}
+        for card, params in lib.params:
+            for key, written, text in params:
+                self.global_scope[key] = self.value(text, self.global_scope, card.place, written)
+
+    def _models(self) -> dict[str, str]:
+        models = {}
+        for mos_type, p in self.tech.mos.items():
+            models[mos_type] = mos_type
+            models.update({m.lower(): mos_type for m in p.models})
+        for name, (kind, line) in self.lib.models.items():
+            if models.get(name, kind) != kind:
+                raise InputError(
+                    self.path, f"model {name} is {kind} here but {models[name]} in the tech file "
+                    f"({self.tech.path})", f"line {line}",
+                )
+            models[name] = kind
+        return models
+
+    def error(self, message: str, place: str) -> InputError:
+        return InputError(self.path, message, place)
+
+    def value(self, text: str, scope: dict[str, float], place: str, what: str) -> float:
+        try:
+            return value_of(text, scope)
+        except ExpressionError as exc:
+            raise self.error(f"{what}: {exc}", place) from None
+
+    def net(self, node: str, prefix: str, ports: dict[str, str]) -> str:
+        low = node.lower()
+        if low == "0":
+            key, shown = self.ground.lower(), self.ground
+        elif low in ports:
+            return ports[low]
+        elif low in self.lib.globals:
+            key, shown = low, node
+        else:
+            key, shown = (prefix + node).lower(), prefix + node
+        self.names.setdefault(key, shown)
+        return key
+
+    def count(self, value: float, place: str, what: str) -> int:
+        n = round(value)
+        if abs(value - n) > 1e-9 or n < 1 or n > _MAX_COUNT:
+            raise self.error(f"{what} must be a whole number from 1 to {_MAX_COUNT}, got {value:g}", place)
+        return n
+
+    def scope_of(self, sub: Subckt, overrides: dict[str, float]) -> dict[str, float]:
+        scope = dict(self.global_scope)
+        place = f"line {sub.line}"
+        for key, text in sub.defaults:
+            scope[key] = overrides[key] if key in overrides else self.value(text, scope, place, key)
+        for card, params in sub.params:
+            for key, written, text in params:
+                scope[key] = self.value(text, scope, card.place, written)
+        return scope
+
+    def instance(self, sub: Subckt, prefix: str, ports: dict[str, str],
+                 overrides: dict[str, float], stack: tuple[str, ...]) -> None:
+        scope = self.scope_of(sub, overrides)
+        for card, pos, params in sub.elements:
+            letter = pos[0][0].lower()
+            if letter == "m":
+                self.mosfet(card, pos, params, prefix, ports, scope)
+            elif letter == "c":
+                self.capacitor(card, pos, params, prefix, ports, scope)
+            else:
+                self.subcircuit(card, pos, params, prefix, ports, scope, stack)
+
+    def values(self, card, params, scope, name: str, allowed: dict[str, float]) -> dict[str, float]:
+        out: dict[str, float] = {}
+        for key, written, text in params:
+            if key in out:
+                raise self.error(f"{name}: {written} is given twice", card.place)
+            if key not in allowed:
+                self.ignored[key].add(name)
+                continue
+            out[key] = self.value(text, scope, card.place, f"{name}: {written}")
+        return out
+
+    def mosfet(self, card, pos, params, prefix, ports, scope) -> None:
+        name = prefix + pos[0]
+        if len(pos) != 6:
+            raise self.error(
+                f"{name}: an M line needs drain gate source bulk model, got {len(pos) - 1} field(s)",
+                card.place,
+            )
+        model = pos[5]
+        if model.lower() not in self.models:
+            known = "; ".join(f"{t}: {', '.join(p.models) or t}" for t, p in self.tech.mos.items())
+            raise self.error(f"{name}: unknown model {model} (tech file models {known})", card.place)
+        vals = self.values(card, params, scope, name, {**_MOS_KEYS, "m": 1, "nf": 1})
+        for key in ("w", "l"):
+            if key not in vals:
+                raise self.error(f"{name}: {key.upper()} is missing", card.place)
+        given: dict[str, float | None] = {}
+        for key, factor in _MOS_KEYS.items():
+            raw = vals.get(key)
+            if raw is None:
+                given[key] = None
+                continue
+            v = _to_um(raw, factor)
+            limit = _MAX_LENGTH_UM ** (2 if key in ("ad", "as") else 1)
+            if v < 0 or (v == 0 and key in ("w", "l")):
+                raise self.error(f"{name}: {key.upper()} must be {'positive' if key in ('w', 'l') else '>= 0'}, "
+                                 f"got {raw:g}", card.place)
+            if v > limit:
+                raise self.error(
+                    f"{name}: {key.upper()}={raw:g} is {v:g} {'µm²' if key in ('ad', 'as') else 'µm'}; "
+                    "SPICE values are in metres (write 1u for 1 µm, 1p for 1 µm²)", card.place,
+                )
+            given[key] = v
+        m = self.count(vals.get("m", 1), card.place, f"{name}: M")
+        nf = self.count(vals.get("nf", 1), card.place, f"{name}: NF")
+        d, g, s = (self.net(n, prefix, ports) for n in pos[1:4])
+        self.mos.append(_Mos(name, self.models[model.lower()], model, d, g, s,
+                             given.pop("w"), given.pop("l"), given, m * nf, nf))
+
+    def capacitor(self, card, pos, params, prefix, ports, scope) -> None:
+        name = prefix + pos[0]
+        vals = self.values(card, params, scope, name, {"c": 1, "m": 1})
+        if len(pos) == 4 and "c" not in vals:
+            vals["c"] = self.value(pos[3], scope, card.place, f"{name}: value")
+        elif len(pos) != 3 or "c" not in vals:
+            raise self.error(f"{name}: a C line needs two nodes and a value", card.place)
+        farads = vals["c"] * self.count(vals.get("m", 1), card.place, f"{name}: M")
+        if farads < 0:
+            raise self.error(f"{name}: capacitance must be >= 0, got {vals['c']:g}", card.place)
+        if vals["c"] > 1e-9:
+            # a wire estimate in a cell is fF to pF; above 1 nF the unit
+            # suffix was almost surely forgotten (``1.3`` is 1.3 farads)
+            raise self.error(f"{name}: {vals['c']:g} F is not a wire capacitance (forgot the f suffix?)", card.place)
+        nodes = {self.net(n, prefix, ports) for n in pos[1:3]}
+        signal = [n for n in nodes if self.tech.role_of(self.names[n]) not in ("power", "ground")]
+        if len(nodes) == 1:
+            signal = []
+        for n in signal:
+            self.wire[n] += _to_um(farads, 1e15)
+        if not signal:
+            why = "has both ends on one net" if len(nodes) == 1 else "joins no signal net"
+            self.findings.append(Finding(f"{self.path}: {card.place}: {name} {why}; ignored"))
+
+    def subcircuit(self, card, pos, params, prefix, ports, scope, stack) -> None:
+        name = prefix + pos[0]
+        sub = self.lib.subckts.get(pos[-1].lower())
+        if sub is None:
+            raise self.error(f"{name}: no subcircuit named {pos[-1]} in this file", card.place)
+        if sub.name.lower() in stack:
+            chain = " → ".join([*stack, sub.name.lower()])
+            raise self.error(f"{name}: recursive instantiation {chain}", card.place)
+        nodes = pos[1:-1]
+        if len(nodes) != len(sub.ports):
+            raise self.error(
+                f"{name}: {sub.name} has {len(sub.ports)} port(s) ({' '.join(sub.ports)}), "
+                f"{len(nodes)} node(s) given", card.place,
+            )
+        declared = {k for k, _ in sub.defaults}
+        copies, overrides = 1, {}
+        for key, written, text in params:
+            v = self.value(text, scope, card.place, f"{name}: {written}")
+            if key == "m" and "m" not in declared:
+                copies = self.count(v, card.place, f"{name}: M")
+            elif key in declared:
+                overrides[key] = v
+            else:
+                have = ", ".join(sorted(declared)) or "none"
+                raise self.error(f"{name}: {sub.name} has no parameter {written} (it has: {have})", card.place)
+        child_ports = {p.lower(): self.net(n, prefix, ports) for p, n in zip(sub.ports, nodes)}
+        for j in range(copies):
+            tag = pos[0] if copies == 1 else f"{pos[0]}.{j + 1}"
+            self.instance(sub, f"{prefix}{tag}/", child_ports, overrides, (*stack, sub.name.lower()))
+
+    def internal_nodes(self, ports: set[str]) -> set[str]:
+        channel = Counter()
+        types: dict[str, set[str]] = defaultdict(set)
+        gates = set()
+        for mos in self.mos:
+            for t in (mos.d, mos.s):
+                channel[t] += 1
+                types[t].add(mos.type)
+            gates.add(mos.g)
+        return {
+            n for n, c in channel.items()
+            if c == 2 and len(types[n]) == 1 and n not in gates and n not in ports
+            and self.tech.role_of(self.names[n]) not in ("power", "ground")
+        }
+
+    def circuit(self, top: Subckt, ports: set[str]) -> Circuit:
+        pre = self.tech.prelayout
+        internal = self.internal_nodes(ports)
+        caps: dict[str, CapParts] = defaultdict(CapParts)
+        junctions: dict[str, dict[str, JunctionGeometry]] = defaultdict(dict)
+        devices: list[Device] = []
+        for mos in self.mos:
+            k, w = mos.nf, mos.w
+            geo = {}
+            for term, net in (("d", mos.d), ("s", mos.s)):
+                area = mos.given["ad" if term == "d" else "as"]
+                perim = mos.given["pd" if term == "d" else "ps"]
+                if net in internal:
+                    # one W × uncontacted_length strip shared by the two
+                    # series devices: each terminal carries half of it
+                    length = pre.uncontacted_length
+                    est = (w * length / 2, w + length)
+                else:
+                    length = pre.contacted_length
+                    est = (w * length, 2 * w + 2 * length)
+                geo[term] = (est[0] if area is None else area, est[1] if perim is None else perim)
+            shown = [self.names[n] for n in (mos.d, mos.g, mos.s)]
+            for i in range(mos.count):
+                name = mos.name if mos.count == 1 else f"{mos.name}.{i + 1}"
+                devices.append(Device(name, mos.type, *shown, w / k, mos.l, geo["d"][0] / k,
+                                      geo["s"][0] / k, geo["d"][1] / k, geo["s"][1] / k, model=mos.model))
+            for net, (area, perim) in ((mos.d, geo["d"]), (mos.s, geo["s"])):
+                j = _scaled(terminal_junction(w / k, area / k, perim / k), mos.count)
+                have = junctions[net].get(mos.type)
+                junctions[net][mos.type] = j if have is None else have + j
+            p = self.tech.mos[mos.type]
+            caps[mos.g] = caps[mos.g] + _scaled(gate_parts(p, w / k, mos.l), mos.count)
+            for net in (mos.d, mos.s):
+                caps[net] = caps[net] + _scaled(overlap_per_side(p, w / k), mos.count)
+        seen: dict[str, str] = {}
+        for dev in devices:
+            low = dev.name.lower()
+            if low in seen:
+                raise InputError(self.path, f"device name {dev.name} occurs twice (after M/NF expansion)")
+            seen[low] = dev.name
+        if self.ignored:
+            listing = "; ".join(f"{k} ({', '.join(sorted(v)[:3])}{', ...' if len(v) > 3 else ''})"
+                                for k, v in sorted(self.ignored.items()))
+            self.findings.append(Finding(f"{self.path}: ignored instance parameters: {listing}"))
+        nets: dict[str, Net] = {}
+        for key, shown in self.names.items():
+            parts = caps[key] + CapParts(wire=self.wire.get(key, 0.0))
+            for mos_type, geo in junctions.get(key, {}).items():
+                parts = parts + junction_parts(self.tech.mos[mos_type], geo)
+            is_port = key in ports
+            nets[shown] = Net(shown, self.tech.role_of(shown), parts, dict(junctions.get(key, {})),
+                              labels=(shown,) if is_port else (), labelled=is_port)
+        return Circuit(top.name, dict(sorted(nets.items())), sorted(devices, key=lambda d: d.name),
+                       self.findings, source=self.path)
+
+
+def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:
+    """Elaborate subcircuit ``top`` of ``lib`` into a flat circuit.
+
+    Parameters
+    ----------
+    lib : Library
+        From :func:`extract.netlist.library.parse_library`.
+    top : Subckt
+        The cell.
+    tech : Tech
+    path : str
+        The netlist file, for messages and ``Circuit.source``.
+
+    Returns
+    -------
+    Circuit
+
+    Raises
+    ------
+    InputError
+        Any value, model, node-count or hierarchy error, naming the line.
+    """
+    b = _Builder(lib, tech, path)
+    ports: dict[str, str] = {}
+    for port in top.ports:
+        ports[port.lower()] = b.net(port, "", {})
+    b.instance(top, "", ports, {}, (top.name.lower(),))
+    return b.circuit(top, set(ports.values()))

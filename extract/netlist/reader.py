@@ -1,0 +1,111 @@
+"""Read a SPICE schematic netlist into the circuit model.
+
+:func:`read_schematic` reads the subset of SPICE that designers write for
+a transistor-level cell and returns the same :class:`~extract.circuit.Circuit`
+the layout extractor produces, with junctions from AD/AS/PD/PS (estimated
+from the tech file's ``[prelayout]`` rules where the netlist leaves them
+out), so pre-layout and post-layout can be analysed alike.
+
+The accepted subset
+-------------------
+- ``.subckt NAME port... [params:] [name=value...]`` ... ``.ends [NAME]``;
+  one level of definition (no ``.subckt`` inside another).
+- ``.param name=expr ...`` at the top (global) or inside a subcircuit
+  (local); expressions as in :mod:`extract.netlist.expressions`.  Each ``.param``
+  may use the parameters defined before it.
+- ``M``: ``Mname drain gate source bulk model [W= L= AD= AS= PD= PS= M= NF=]``.
+- ``C``: ``Cname node node value`` (or ``C=value``; ``M=`` multiplies).
+- ``X``: ``Xname node... subckt [name=value...] [M=k]``, a subcircuit of
+  the same file, flattened with hierarchical names ``X1/MN3``, ``X1/n1``.
+- ``.model NAME nmos|pmos ...`` gives a model name a type (its parameters
+  are not used: the tech file has them).  ``.global`` nets are not
+  prefixed.  Node ``0`` is SPICE's ground: it becomes the tech file's
+  first ground net.
+- Outside any ``.subckt``, element lines and simulator commands (a test
+  bench: sources, ``.tran``, ``.option``, ``.control``...``.endc``) are
+  ignored; ``.end`` ends the file.
+- Rejected with a message naming the line: ``.include``/``.inc``/``.lib``
+  (put the cells in one file; the device parameters come from the tech
+  file), elements other than M, C, X inside a subcircuit (R, V, I, L, D,
+  ...), unknown model names, unknown subcircuits, wrong node counts,
+  recursive instantiation, bad values.
+
+Which subcircuit is the cell: the ``subckt`` argument; otherwise the only
+one that no other subcircuit instantiates.
+
+Notes
+-----
+Reading is one pass over the cards (:mod:`extract.netlist.cards`) building
+subcircuit definitions, then a recursive elaboration
+(:mod:`extract.netlist.flatten`) that is linear in the number of
+flattened elements.
+"""
+
+from __future__ import annotations
+
+from extract.circuit import Circuit
+from extract.errors import InputError
+from extract.netlist.flatten import flatten
+from extract.netlist.library import choose_top, parse_library
+from extract.tech import Tech
+
+__all__ = ["read_schematic", "parse_schematic"]
+
+
+def parse_schematic(text: str, path: str, tech: Tech, subckt: str | None = None) -> Circuit:
+    """Like :func:`read_schematic`, from text.
+
+    Examples
+    --------
+    >>> from extract.tech import MosParams, NetRoles, Tech
+    >>> n = MosParams("nmos", 0.45, 0.4, 0.8, 200, 8, 0, 1.0, 0.25, 0.25, 0.5, 0.33, 0.8, 0.8)
+    >>> t = Tech("t", 1.8, NetRoles(), {}, {"nmos": n, "pmos": n})
+    >>> c = parse_schematic(".subckt S a y VSS\\nM1 y a VSS VSS nmos W=1u L=0.2u NF=2\\n.ends", "s.sp", t)
+    >>> [(d.name, d.w_um, d.l_um) for d in c.devices]
+    [('M1.1', 0.5, 0.2), ('M1.2', 0.5, 0.2)]
+    >>> c.nets["y"].labelled, c.nets["VSS"].role
+    (True, 'ground')
+    """
+    lib = parse_library(text, path)
+    top = choose_top(lib, path, subckt)
+    return flatten(lib, top, tech, path)
+
+
+def read_schematic(path, tech: Tech, subckt: str | None = None) -> Circuit:
+    """Read a SPICE netlist file into a flat :class:`~extract.circuit.Circuit`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The netlist.  Never written.
+    tech : Tech
+        Device types of model names, capacitance parameters, net roles,
+        ``[prelayout]`` estimation rules.
+    subckt : str, optional
+        The cell's subcircuit; default: the only top-level one.
+
+    Returns
+    -------
+    Circuit
+        ``source`` is ``path``; ports are labelled nets; devices from ``M``
+        lines (split by ``M=`` and ``NF=``), nets with zero-bias
+        capacitance by part.
+
+    Raises
+    ------
+    InputError
+        File missing or unreadable; any error of the netlist, with its line.
+    """
+    path = str(path)
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except FileNotFoundError:
+        raise InputError(path, "file not found") from None
+    except OSError as exc:
+        raise InputError(path, f"cannot read: {exc.strerror or exc}") from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        text = data.decode("latin-1")
+    return parse_schematic(text, path, tech, subckt)

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field, fields
 
 from extract.errors import Finding
 
-__all__ = ["CapParts", "JunctionGeometry", "Net", "Device", "Circuit", "CAP_PART_NAMES"]
+__all__ = ["CapParts", "JunctionGeometry", "Net", "Device", "Coupling", "Circuit", "CAP_PART_NAMES"]
 
 #: The parts of a net's capacitance, in report order.
 CAP_PART_NAMES = (
@@ -192,6 +192,30 @@ class Device:
         return None
 
 
+@dataclass(frozen=True)
+class Coupling:
+    """Capacitance between two signal nets (a post-layout netlist's
+    coupling capacitors, summed per pair).
+
+    For the droop it is also counted in the ``wire`` part of both nets, as
+    if the other end were held still (conservative for the charge-sharing
+    nodes); it is kept here so reports can show it.
+
+    Parameters
+    ----------
+    net_a, net_b : str
+        The two nets, ``net_a < net_b``.
+    cap_ff : float
+    elements : int
+        How many capacitors were summed.
+    """
+
+    net_a: str
+    net_b: str
+    cap_ff: float
+    elements: int = 1
+
+
 @dataclass
 class Circuit:
     """A flat circuit: nets, devices and what extraction noticed.
@@ -211,6 +235,8 @@ class Circuit:
     shapes : dict of str to list of (str, object)
         Layout only: for each net, ``(layer name, shapely Polygon)`` pieces,
         for drawing.  Empty for a schematic.
+    couplings : list of Coupling
+        Netlist only: capacitance between signal nets, sorted.
     """
 
     cell: str
@@ -219,6 +245,7 @@ class Circuit:
     findings: list[Finding] = field(default_factory=list)
     source: str = ""
     shapes: dict[str, list[tuple[str, object]]] = field(default_factory=dict)
+    couplings: list[Coupling] = field(default_factory=list)
 
     def device(self, name: str) -> Device:
         """The device called ``name`` (KeyError if none); O(1) after the

@@ -19,6 +19,7 @@ __all__ = [
     "MosParams",
     "NetRoles",
     "Prelayout",
+    "Models",
     "Tech",
 ]
 
@@ -136,6 +137,29 @@ class Prelayout:
 
 
 @dataclass(frozen=True)
+class Models:
+    """The foundry's SPICE model library (``[models]``).
+
+    Parameters
+    ----------
+    library : str
+        Path of the model library, made absolute against the tech file's
+        folder when read from a file.
+    corners : tuple of str
+        Sections to load with ``.lib FILE SECTION``; empty: the file is
+        included whole.
+    nmos, pmos : str
+        Device (subcircuit or model) name an extracted nmos/pmos is written
+        as in a simulation deck.
+    """
+
+    library: str
+    corners: tuple[str, ...] = ()
+    nmos: str = ""
+    pmos: str = ""
+
+
+@dataclass(frozen=True)
 class Tech:
     """A whole tech file.
 
@@ -155,6 +179,18 @@ class Tech:
     prelayout : Prelayout
     path : str
         The file it came from (for messages), ``"<tech>"`` when built in code.
+    netlist_scale : float or None
+        ``[netlist] scale``: netlist lengths times this are metres (areas
+        times its square).  None: the reader's default for the file (1 for
+        SPICE, 1e-6 for CDL); a ``.option scale=`` in the file wins.
+    netlist_ignore : tuple of str
+        ``[netlist] ignore``: device or subcircuit names whose instances
+        are left out of a netlist's circuit (diodes, resistors of a
+        foundry library), compared without case.
+    models : Models or None
+        ``[models]``, the foundry model library, if given.
+    evaluation_ns : float
+        ``[check] evaluation_ns``: how long evaluation lasts, ns.
     """
 
     name: str
@@ -165,6 +201,10 @@ class Tech:
     guard: float = 0.0
     prelayout: Prelayout = field(default_factory=Prelayout)
     path: str = "<tech>"
+    netlist_scale: float | None = None
+    netlist_ignore: tuple[str, ...] = ()
+    models: Models | None = None
+    evaluation_ns: float = 1.0
 
     def layers_of_kind(self, *kinds: str) -> list[Layer]:
         """Layers whose kind is one of ``kinds``, in file order."""

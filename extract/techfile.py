@@ -24,11 +24,11 @@ except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
 from .errors import InputError
-from .tech import CONDUCTOR_KINDS, LAYER_KINDS, Layer, MosParams, NetRoles, Prelayout, Tech
+from .tech import CONDUCTOR_KINDS, LAYER_KINDS, Layer, Models, MosParams, NetRoles, Prelayout, Tech
 
 __all__ = ["load_tech", "parse_tech"]
 
-_TOP_KEYS = ("process", "nets", "layers", "mos", "check", "prelayout")
+_TOP_KEYS = ("process", "nets", "layers", "mos", "check", "prelayout", "netlist", "models")
 _LAYER_KEYS = ("gds", "kind", "area", "fringe", "labels", "joins")
 _WIRE_KINDS = ("poly", "metal")  # kinds that take `area` and `fringe`
 _MOS_REQUIRED = ("vt0", "gamma", "phi", "kp", "cox", "cj", "cjsw", "mj", "mjsw", "pb")
@@ -157,15 +157,18 @@ def parse_tech(text: str, path: str) -> Tech:
                 place = f"line {where.group(1)}"
                 message += f" (column {where.group(2)})"
         reader.fail(place, f"invalid TOML: {message}")
-    reader.keys(data, "", _TOP_KEYS, ("process", "nets", "layers", "mos"))
+    reader.keys(data, "", _TOP_KEYS, ("process", "nets", "mos"))
     name, vdd = _process(reader, data["process"])
     nets = _nets(reader, data["nets"])
-    layers = _layers(reader, data["layers"])
+    layers = _layers(reader, data["layers"]) if "layers" in data else {}
     mos = _mos(reader, data["mos"])
-    guard = _check(reader, data.get("check"), vdd)
+    guard, evaluation_ns = _check(reader, data.get("check"), vdd)
     prelayout = _prelayout(reader, data.get("prelayout"))
+    scale, ignore = _netlist(reader, data.get("netlist"))
+    models = _models(reader, data.get("models"), path)
     return Tech(name=name, vdd=vdd, nets=nets, layers=layers, mos=mos,
-                guard=guard, prelayout=prelayout, path=path)
+                guard=guard, prelayout=prelayout, path=path, netlist_scale=scale, netlist_ignore=ignore,
+                models=models, evaluation_ns=evaluation_ns)
 
 
 def _key(path: str, key: str | int) -> str:
@@ -381,14 +384,52 @@ def _mos_table(r: _Reader, kind: str, table) -> MosParams:
     return MosParams(type=kind, models=r.strings(table, path, "models"), **values)
 
 
-def _check(r: _Reader, table, vdd: float) -> float:
+def _check(r: _Reader, table, vdd: float) -> tuple[float, float]:
     if table is None:
-        return 0.0
-    r.keys(table, "check", ("guard",))
+        return 0.0, 1.0
+    r.keys(table, "check", ("guard", "evaluation_ns"))
     guard = r.number(table, "check", "guard", ">=0", 0.0)
     if guard >= vdd:
         r.fail("check.guard", f"must be < process.vdd ({vdd:g}), got {table['guard']}")
-    return guard
+    evaluation = r.number(table, "check", "evaluation_ns", ">0", 1.0)
+    if evaluation > 1e6:
+        r.fail("check.evaluation_ns", f"must be at most 1e6 ns (1 ms), got {table['evaluation_ns']}")
+    return guard, evaluation
+
+
+def _netlist(r: _Reader, table) -> tuple[float | None, tuple[str, ...]]:
+    """``[netlist] scale`` (None when absent: the reader's default) and ``ignore``."""
+    if table is None:
+        return None, ()
+    r.keys(table, "netlist", ("scale", "ignore"))
+    ignore = r.strings(table, "netlist", "ignore")
+    scale = r.number(table, "netlist", "scale", ">0")
+    if scale is not None and not 1e-12 <= scale <= 1.0:
+        r.fail("netlist.scale", f"must be between 1e-12 and 1 (metres per netlist unit; "
+                                f"1e-6 for lengths in µm), got {table['scale']}")
+    return scale, ignore
+
+
+def _models(r: _Reader, table, path: str) -> Models | None:
+    """``[models]``: the library path is made absolute against the tech file."""
+    if table is None:
+        return None
+    r.keys(table, "models", ("library", "corners", "nmos", "pmos"), ("library", "nmos", "pmos"))
+    library = r.string(table["library"], "models.library")
+    if not os.path.isabs(library) and not path.startswith("<"):
+        library = os.path.join(os.path.dirname(os.path.abspath(path)), library)
+    corners = r.strings(table, "models", "corners")
+    for i, corner in enumerate(corners):
+        if not _BARE_KEY.match(corner):
+            r.fail(f"models.corners[{i}]", f"a corner is a section name (letters, digits, _ -), got {corner!r}")
+        if corner.lower() in (c.lower() for c in corners[:i]):
+            r.fail(f"models.corners[{i}]", f"{corner!r} is listed twice")
+    devices = {}
+    for kind in ("nmos", "pmos"):
+        devices[kind] = r.string(table[kind], f"models.{kind}")
+        if not re.fullmatch(r"[A-Za-z_][\w.$]*", devices[kind]):
+            r.fail(f"models.{kind}", f"not a SPICE device name: {devices[kind]!r}")
+    return Models(library=library, corners=corners, **devices)
 
 
 def _prelayout(r: _Reader, table) -> Prelayout:

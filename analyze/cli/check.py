@@ -60,10 +60,10 @@ def check_text(circuit, tech, recognition, results) -> str:
 
 
 def check_cell(args) -> int:
-    from extract.layout.pipeline import extract_layout
+    from analyze.cli.inputs import open_cells
 
     tech, constraints = load_run_inputs(args)
-    circuit = extract_layout(args.layout, tech, args.cell)
+    circuit = open_cells(args.layout, tech).circuit(args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
     report = check_report(circuit, tech, recognition, results)
     text = check_text(circuit, tech, recognition, results)

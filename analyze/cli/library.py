@@ -53,10 +53,9 @@ def check_cell_in_library(path: str, tech_path: str, cell: str, constraints_path
     """Extract and check one cell; never raises for bad input (it is
     recorded in the outcome).  The library and tech are read once per
     process."""
+    from analyze.cli.inputs import open_cells
     from analyze.search.analysis import analyse_circuit
     from extract.errors import InputError
-    from extract.layout.reader import open_layout
-    from extract.layout.pipeline import extract_cell
     from extract.techfile import load_tech
 
     try:
@@ -68,9 +67,10 @@ def check_cell_in_library(path: str, tech_path: str, cell: str, constraints_path
 
                 constraints = load_constraints(constraints_path)
             _OPEN.clear()
-            _OPEN[key] = (open_layout(path), load_tech(tech_path), constraints)
-        layout, tech, constraints = _OPEN[key]
-        circuit = extract_cell(layout, tech, cell)
+            tech = load_tech(tech_path)
+            _OPEN[key] = (open_cells(path, tech), tech, constraints)
+        source, tech, constraints = _OPEN[key]
+        circuit = source.circuit(cell)
         recognition, results = analyse_circuit(circuit, tech)
         if constraints is not None:
             from analyze.search.analysis import analyze_stage
@@ -146,8 +146,8 @@ def summary_table(outcomes: list[CellOutcome]) -> str:
 
 
 def run_library(args) -> int:
+    from analyze.cli.inputs import open_cells
     from extract.errors import InputError
-    from extract.layout.reader import open_layout
     from extract.techfile import load_tech
 
     if getattr(args, "html", None):
@@ -163,7 +163,7 @@ def run_library(args) -> int:
         from analyze.search.constraints import load_constraints
 
         constraints = load_constraints(args.constraints)
-    cells = open_layout(args.layout).cells
+    cells = open_cells(args.layout, tech).cells
     jobs = max(1, args.jobs or 1)
 
     from rich.console import Console

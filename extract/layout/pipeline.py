@@ -54,7 +54,16 @@ def extract_layout(path: str, tech: Tech, cell: str | None = None) -> Circuit:
 
 
 def tech_layers(tech: Tech) -> set[tuple[int, int]]:
-    """The ``(layer, datatype)`` pairs the tech file uses (shapes and text)."""
+    """The ``(layer, datatype)`` pairs the tech file uses (shapes and text).
+
+    Raises
+    ------
+    InputError
+        The tech file has no ``[layers]`` (it can describe netlists only).
+    """
+    if not tech.layers:
+        raise InputError(tech.path, "has no [layers] tables, so it can read netlists only; "
+                                    "describe the drawn layers to read a layout", "layers")
     wanted = {layer.gds for layer in tech.layers.values()}
     return wanted | {pair for layer in tech.layers.values() for pair in layer.labels}
 

@@ -9,10 +9,28 @@ Conventions
 -----------
 Units
     SPICE values are SI: W, L, PD, PS in metres (``1u`` = 1 µm), AD, AS
-    in m² (``1p`` = 1 µm²), C in farads (``1f`` = 1 fF).  They are stored
-    in µm, µm², fF.  A length above 1 mm (or an area above 1 mm²) is taken
-    for a unit mistake (``W=1`` is one metre in SPICE) and rejected, and so
-    is a capacitor above 1 nF (``1.3`` is 1.3 F, not 1.3 fF).
+    in m² (``1p`` = 1 µm²), C in farads (``1f`` = 1 fF).  Lengths are
+    multiplied by the netlist's *scale* first (areas by its square): a
+    ``.option scale=`` card of the file, else ``[netlist] scale`` of the
+    tech file, else 1 for SPICE and 1e-6 for CDL (``.cdl`` files, lengths in
+    µm as CDL writes them).  They are stored in µm, µm², fF.  A length above
+    1 mm (or an area above 1 mm²) is taken for a unit mistake (``W=1`` is
+    one metre in SPICE) and rejected, and so is a capacitor above 1 nF
+    (``1.3`` is 1.3 F, not 1.3 fF).
+Device subcircuits
+    ``Xname d g s b SUBCKT [w= l= ad= as= pd= ps= m= mult= nf=]`` whose
+    SUBCKT is a model name of ``[mos.*] models`` (any case) is a transistor,
+    as foundry libraries write them; that name wins over a subcircuit of
+    the same name.  Other instance parameters (``sa sb sd topography area
+    perim nrd nrs`` ...) are accepted and listed in one finding.
+Left out
+    D lines (diodes: antenna and tap diodes, reverse biased) and X lines of
+    a device named in ``[netlist] ignore`` are left out, counted in one
+    finding.
+Resistors
+    An R line joins its two nodes into one net (a post-layout netlist's
+    wire resistance): charge sharing settles in a time much longer than the
+    wire's RC, so the final state sees one node.
 Parameters
     Global ``.param`` first; then, per instance, the subcircuit's defaults
     (from its ``.subckt`` line) unless the ``X`` line overrides them (an
@@ -44,9 +62,10 @@ Capacitor lines
     ``wire`` part of each terminal that is not a supply or ground net
     (node ``0`` is ground).  A capacitor between two signal nets is added
     to both, as if each other end were held still: conservative for the
-    internal nodes that share charge.  Coupling noise is not modelled.  A
-    capacitor with both ends on one net, or only on supplies, is ignored
-    (with a finding).
+    internal nodes that share charge, and also kept as a
+    :class:`~extract.circuit.Coupling` for the reports.  Coupling noise is
+    not modelled.  A capacitor with both ends on one net, or only on
+    supplies, is ignored (with a finding).
 Bulk
     The bulk terminal is not used: the type comes from the model, and the
     body is taken at the rail.
@@ -62,7 +81,7 @@ from __future__ import annotations
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 
-from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
+from extract.circuit import CapParts, Circuit, Coupling, Device, JunctionGeometry, Net
 from extract.errors import Finding, InputError
 from extract.capacitance import gate_parts, junction_parts, overlap_per_side
 from extract.netlist.library import Library, Subckt
@@ -71,7 +90,8 @@ from extract.tech import Tech
 
 __all__ = ["flatten", "terminal_junction"]
 
-_MOS_KEYS = {"w": 1e6, "l": 1e6, "ad": 1e12, "as": 1e12, "pd": 1e6, "ps": 1e6}
+#: Instance parameters of a transistor and whether each is a length (1) or an area (2).
+_MOS_KEYS = {"w": 1, "l": 1, "ad": 2, "as": 2, "pd": 1, "ps": 1}
 _MAX_LENGTH_UM = 1000.0
 _MAX_COUNT = 100_000
 
@@ -146,6 +166,18 @@ class _Builder:
         self.findings: list[Finding] = list(lib.findings)
         self.ground = tech.nets.ground[0] if tech.nets.ground else "0"
         self.models = self._models()
+        #: model names that an X line may use as a transistor
+        self.devices = {m.lower(): t for t, p in tech.mos.items() for m in p.models}
+        if lib.scale is not None:
+            self.scale = lib.scale
+        elif tech.netlist_scale is not None:
+            self.scale = tech.netlist_scale
+        else:
+            self.scale = 1e-6 if lib.dialect == "cdl" else 1.0
+        self.shorts: list[tuple[str, str]] = []
+        self.ignore = {n.lower() for n in tech.netlist_ignore}
+        self.left_out: Counter = Counter()
+        self.couplings: dict[tuple[str, str], list] = {}
         self.global_scope: dict[str, float] = {}
         for card, params in lib.params:
             for key, written, text in params:
@@ -208,10 +240,14 @@ class _Builder:
         scope = self.scope_of(sub, overrides)
         for card, pos, params in sub.elements:
             letter = pos[0][0].lower()
-            if letter == "m":
+            if letter == "d" or (letter == "x" and pos[-1].lower() in self.ignore):
+                self.left_out["diode" if letter == "d" else pos[-1]] += 1
+            elif letter == "m" or (letter == "x" and pos[-1].lower() in self.devices):
                 self.mosfet(card, pos, params, prefix, ports, scope)
             elif letter == "c":
                 self.capacitor(card, pos, params, prefix, ports, scope)
+            elif letter == "r":
+                self.resistor(card, pos, prefix, ports)
             else:
                 self.subcircuit(card, pos, params, prefix, ports, scope, stack)
 
@@ -229,40 +265,55 @@ class _Builder:
     def mosfet(self, card, pos, params, prefix, ports, scope) -> None:
         name = prefix + pos[0]
         if len(pos) != 6:
+            what = "an M line" if pos[0][0] in "mM" else f"an X line of device {pos[-1]}"
             raise self.error(
-                f"{name}: an M line needs drain gate source bulk model, got {len(pos) - 1} field(s)",
+                f"{name}: {what} needs drain gate source bulk model, got {len(pos) - 1} field(s)",
                 card.place,
             )
         model = pos[5]
         if model.lower() not in self.models:
             known = "; ".join(f"{t}: {', '.join(p.models) or t}" for t, p in self.tech.mos.items())
             raise self.error(f"{name}: unknown model {model} (tech file models {known})", card.place)
-        vals = self.values(card, params, scope, name, {**_MOS_KEYS, "m": 1, "nf": 1})
+        vals = self.values(card, params, scope, name, {**_MOS_KEYS, "m": 1, "mult": 1, "nf": 1})
         for key in ("w", "l"):
             if key not in vals:
                 raise self.error(f"{name}: {key.upper()} is missing", card.place)
         given: dict[str, float | None] = {}
-        for key, factor in _MOS_KEYS.items():
+        for key, power in _MOS_KEYS.items():
             raw = vals.get(key)
             if raw is None:
                 given[key] = None
                 continue
-            v = _to_um(raw, factor)
-            limit = _MAX_LENGTH_UM ** (2 if key in ("ad", "as") else 1)
+            v = _to_um(raw, (self.scale * 1e6) ** power)
+            limit = _MAX_LENGTH_UM ** power
             if v < 0 or (v == 0 and key in ("w", "l")):
                 raise self.error(f"{name}: {key.upper()} must be {'positive' if key in ('w', 'l') else '>= 0'}, "
                                  f"got {raw:g}", card.place)
             if v > limit:
                 raise self.error(
-                    f"{name}: {key.upper()}={raw:g} is {v:g} {'µm²' if key in ('ad', 'as') else 'µm'}; "
-                    "SPICE values are in metres (write 1u for 1 µm, 1p for 1 µm²)", card.place,
+                    f"{name}: {key.upper()}={raw:g} is {v:g} {'µm²' if power == 2 else 'µm'} "
+                    f"with scale {self.scale:g}; {self._unit_hint()}", card.place,
                 )
             given[key] = v
         m = self.count(vals.get("m", 1), card.place, f"{name}: M")
+        m *= self.count(vals.get("mult", 1), card.place, f"{name}: MULT")
         nf = self.count(vals.get("nf", 1), card.place, f"{name}: NF")
         d, g, s = (self.net(n, prefix, ports) for n in pos[1:4])
         self.mos.append(_Mos(name, self.models[model.lower()], model, d, g, s,
                              given.pop("w"), given.pop("l"), given, m * nf, nf))
+
+    def _unit_hint(self) -> str:
+        if self.scale == 1.0:
+            return ("SPICE values are in metres (write 1u for 1 µm, 1p for 1 µm²); for lengths "
+                    "in µm set [netlist] scale = 1e-6 in the tech file")
+        return "check [netlist] scale in the tech file or the file's .option scale"
+
+    def resistor(self, card, pos, prefix, ports) -> None:
+        name = prefix + pos[0]
+        if len(pos) < 3:
+            raise self.error(f"{name}: an R line needs two nodes", card.place)
+        a, b = (self.net(n, prefix, ports) for n in pos[1:3])
+        self.shorts.append((a, b))
 
     def capacitor(self, card, pos, params, prefix, ports, scope) -> None:
         name = prefix + pos[0]
@@ -284,6 +335,10 @@ class _Builder:
             signal = []
         for n in signal:
             self.wire[n] += _to_um(farads, 1e15)
+        if len(signal) == 2:
+            entry = self.couplings.setdefault(tuple(sorted(signal)), [0.0, 0])
+            entry[0] += _to_um(farads, 1e15)
+            entry[1] += 1
         if not signal:
             why = "has both ends on one net" if len(nodes) == 1 else "joins no signal net"
             self.findings.append(Finding(f"{self.path}: {card.place}: {name} {why}; ignored"))
@@ -333,8 +388,47 @@ class _Builder:
             and self.tech.role_of(self.names[n]) not in ("power", "ground")
         }
 
+    def merge_shorts(self, ports: set[str]) -> None:
+        """Join the nets that R lines connect (union-find over net keys).
+
+        The net that stands for a joined group is a port if one is in it,
+        else a supply, else the shortest name (then the first in order).
+        """
+        if not self.shorts:
+            return
+        import networkx as nx
+
+        g = nx.Graph(self.shorts)
+        rep: dict[str, str] = {}
+        for group in nx.connected_components(g):
+            def rank(key):
+                role = self.tech.role_of(self.names[key])
+                return (key not in ports, role not in ("power", "ground"), len(key), key)
+            head = min(group, key=rank)
+            rep.update({k: head for k in group})
+        for mos in self.mos:
+            mos.d, mos.g, mos.s = (rep.get(n, n) for n in (mos.d, mos.g, mos.s))
+        wire: dict[str, float] = defaultdict(float)
+        for key, value in self.wire.items():
+            wire[rep.get(key, key)] += value
+        self.wire = wire
+        couplings: dict[tuple[str, str], list] = {}
+        for (a, b), (cap, count) in self.couplings.items():
+            a, b = rep.get(a, a), rep.get(b, b)
+            if a == b:
+                continue  # a capacitor across a resistor of one net: its charge stays on the net
+            entry = couplings.setdefault(tuple(sorted((a, b))), [0.0, 0])
+            entry[0] += cap
+            entry[1] += count
+        self.couplings = couplings
+        self.names = {k: v for k, v in self.names.items() if rep.get(k, k) == k}
+        self.findings.append(Finding(
+            f"{self.path}: {len(self.shorts)} resistor(s) taken as shorts, "
+            f"{len(rep) - len(set(rep.values()))} net(s) joined into others"))
+
     def circuit(self, top: Subckt, ports: set[str]) -> Circuit:
         pre = self.tech.prelayout
+        self.merge_shorts(ports)
         internal = self.internal_nodes(ports)
         caps: dict[str, CapParts] = defaultdict(CapParts)
         junctions: dict[str, dict[str, JunctionGeometry]] = defaultdict(dict)
@@ -373,6 +467,9 @@ class _Builder:
             if low in seen:
                 raise InputError(self.path, f"device name {dev.name} occurs twice (after M/NF expansion)")
             seen[low] = dev.name
+        if self.left_out:
+            listing = ", ".join(f"{n} {k}" for k, n in sorted(self.left_out.items()))
+            self.findings.append(Finding(f"{self.path}: left out of the circuit: {listing}"))
         if self.ignored:
             listing = "; ".join(f"{k} ({', '.join(sorted(v)[:3])}{', ...' if len(v) > 3 else ''})"
                                 for k, v in sorted(self.ignored.items()))
@@ -385,8 +482,10 @@ class _Builder:
             is_port = key in ports
             nets[shown] = Net(shown, self.tech.role_of(shown), parts, dict(junctions.get(key, {})),
                               labels=(shown,) if is_port else (), labelled=is_port)
+        couplings = sorted(Coupling(*sorted((self.names[a], self.names[b])), cap, count)
+                           for (a, b), (cap, count) in self.couplings.items())
         return Circuit(top.name, dict(sorted(nets.items())), sorted(devices, key=lambda d: d.name),
-                       self.findings, source=self.path)
+                       self.findings, source=self.path, couplings=couplings)
 
 
 def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:

@@ -13,6 +13,7 @@ One pass over the cards, linear in the file size.
 
 from __future__ import annotations
 
+import os
 import re
 from dataclasses import dataclass, field
 
@@ -67,12 +68,15 @@ class Subckt:
     elements : list of (Card, list of str, list of (str, str, str))
         M, C and X cards with positional fields and parameters.
     line : int
+    path : str
+        The file that defines it.
     """
 
     name: str
     ports: list[str]
     defaults: list[tuple[str, str]]
     line: int
+    path: str = ""
     params: list[tuple[Card, list[tuple[str, str, str]]]] = field(default_factory=list)
     elements: list[tuple[Card, list[str], list[tuple[str, str, str]]]] = field(default_factory=list)
 
@@ -97,6 +101,14 @@ class Library:
         Lower-case model name -> (``"nmos"``/``"pmos"``, line) from
         ``.model`` cards.
     findings : list of Finding
+    scale : float or None
+        From a ``.option scale=`` card, if any.
+    dialect : str
+        ``"cdl"`` for a ``.cdl`` file, else ``"spice"``.
+    skipped : list of str
+        Included files (or ``.lib`` sections) skipped as model libraries.
+    files : dict of str to str
+        Every file read (absolute path -> path as named), the top one first.
     """
 
     subckts: dict[str, Subckt] = field(default_factory=dict)
@@ -104,6 +116,10 @@ class Library:
     globals: set[str] = field(default_factory=set)
     models: dict[str, tuple[str, int]] = field(default_factory=dict)
     findings: list[Finding] = field(default_factory=list)
+    scale: float | None = None
+    dialect: str = "spice"
+    skipped: list[str] = field(default_factory=list)
+    files: dict[str, str] = field(default_factory=dict)
 
 
 def _param_card(card: Card, path: str) -> list[tuple[str, str, str]]:
@@ -126,18 +142,19 @@ def _start_subckt(card: Card, path: str, lib: Library) -> Subckt:
         if port.lower() in seen:
             raise InputError(path, f"port {port} appears twice in .subckt {name}", card.place)
         seen.add(port.lower())
-    return Subckt(name, ports, [(k, v) for k, _, v in params], card.line)
+    return Subckt(name, ports, [(k, v) for k, _, v in params], card.line, path)
 
 
 def _element(card: Card, path: str, sub: Subckt, names: dict[str, int]) -> None:
     kw = card.keyword
     letter = kw[0]
-    if letter not in "mcx":
+    if letter not in "mcxrd":
         kind = ELEMENT_KINDS.get(letter, "element")
         raise InputError(
             path,
-            f"{card.text.split()[0]} ({kind}) is not supported in a schematic: use MOSFETs (M), "
-            "capacitors (C) and subcircuit instances (X) only",
+            f"{card.text.split()[0]} ({kind}) is not supported in a cell: use MOSFETs (M), "
+            "capacitors (C), resistors (R, taken as shorts), diodes (D, left out) and subcircuit "
+            "instances (X) only",
             card.place,
         )
     if kw in names:
@@ -161,6 +178,177 @@ def _model(card: Card, path: str, lib: Library) -> None:
         lib.models[m.group(1).lower()] = (kind, card.line)
 
 
+_SUBCKT_LINE = re.compile(rb"^[ \t]*\.subckt\b", re.I | re.M)
+_MODEL_LINE = re.compile(rb"^[ \t]*\.model\b", re.I | re.M)
+_SCALE = re.compile(r"\bscale\s*=\s*(\S+)", re.I)
+#: Included files larger than this are refused (a netlist library of a
+#: whole cell family is a few MB; a bigger include is a mistake).
+MAX_INCLUDE_BYTES = 256 * 1024 * 1024
+#: How deep includes may nest.
+MAX_INCLUDE_DEPTH = 32
+
+
+def _decode(data: bytes) -> str:
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        return data.decode("latin-1")
+
+
+def _lib_section(data: bytes, section: str, path: str, place: str) -> bytes:
+    """The text between ``.lib SECTION`` and its ``.endl`` in a library file."""
+    start = re.search(rb"^[ \t]*\.lib[ \t]+" + re.escape(section.encode()) + rb"[ \t]*\r?$",
+                      data, re.I | re.M)
+    if start is None:
+        raise InputError(path, f"no section {section} in the library {path}", place)
+    end = re.compile(rb"^[ \t]*\.endl\b", re.I | re.M).search(data, start.end())
+    # keep the lines before the section as blank lines, so that line
+    # numbers in messages are those of the file
+    head = b"\n" * data.count(b"\n", 0, start.end())
+    return head + data[start.end(): end.start() if end else len(data)]
+
+
+class _Parser:
+    """One library being read: the state shared by every file it includes."""
+
+    def __init__(self, top_path: str):
+        self.lib = Library(dialect="cdl" if top_path.lower().endswith(".cdl") else "spice")
+        self.bench: list[str] = []
+
+    def include(self, card: Card, path: str, stack: tuple[str, ...], names: list[str]) -> None:
+        """Follow ``.include FILE`` or ``.lib FILE SECTION`` (``names``)."""
+        if not names:
+            raise InputError(path, f"{card.keyword} needs a file name", card.place)
+        target = names[0].strip("'\"")
+        if card.keyword == ".lib" and len(names) == 1:
+            # ``.lib SECTION`` opens a section of a library read whole:
+            # sections are entered only through ``.lib FILE SECTION``
+            raise _SkipSection()
+        full = target if os.path.isabs(target) else os.path.join(os.path.dirname(os.path.abspath(path)), target)
+        full = os.path.normpath(full)
+        section = names[1] if card.keyword == ".lib" and len(names) > 1 else None
+        key = f"{full}#{section}" if section else full
+        if key in stack:
+            chain = " → ".join([*(k.rsplit("/", 1)[-1] for k in stack), os.path.basename(key)])
+            raise InputError(path, f"{card.keyword} {target}: include cycle {chain}", card.place)
+        if len(stack) >= MAX_INCLUDE_DEPTH:
+            raise InputError(path, f"{card.keyword} {target}: includes nest deeper than {MAX_INCLUDE_DEPTH}",
+                             card.place)
+        try:
+            if os.path.isdir(full):
+                raise InputError(path, f"{card.keyword} {target}: is a directory", card.place)
+            size = os.path.getsize(full)
+            if size > MAX_INCLUDE_BYTES:
+                raise InputError(path, f"{card.keyword} {target}: {size} bytes, more than a netlist "
+                                       f"library can be ({MAX_INCLUDE_BYTES} bytes)", card.place)
+            with open(full, "rb") as fh:
+                data = fh.read()
+        except FileNotFoundError:
+            raise InputError(path, f"{card.keyword} {target}: file not found ({full})", card.place) from None
+        except OSError as exc:
+            raise InputError(path, f"{card.keyword} {target}: cannot read: {exc.strerror or exc}",
+                             card.place) from None
+        shown = os.path.relpath(full) if not os.path.isabs(target) else full
+        if section is not None:
+            data = _lib_section(data, section, shown, card.place)
+        what = f"{shown} section {section}" if section else shown
+        # a file (or section) that defines device models, or brings no
+        # subcircuit at all, is a model library: the tech file has the
+        # device parameters, so it is not read (nor what it includes)
+        if _MODEL_LINE.search(data) or not _SUBCKT_LINE.search(data):
+            if what not in self.lib.skipped:
+                self.lib.skipped.append(what)
+            return
+        self.lib.files.setdefault(full, shown)
+        self.read(_decode(data), shown, (*stack, key))
+
+    def read(self, text: str, path: str, stack: tuple[str, ...]) -> None:
+        lib = self.lib
+        current: Subckt | None = None
+        names: dict[str, int] = {}
+        control_line = 0
+        section_line = 0
+        for card in read_cards(text, path):
+            kw = card.keyword
+            if control_line:
+                if kw == ".endc":
+                    control_line = 0
+                continue
+            if section_line:
+                if kw == ".endl":
+                    section_line = 0
+                continue
+            if kw == ".end":
+                break
+            if kw == ".subckt":
+                if current is not None:
+                    raise InputError(
+                        path, f".subckt inside .subckt {current.name} (line {current.line}); "
+                        "nested definitions are not supported", card.place,
+                    )
+                current = _start_subckt(card, path, lib)
+                names = {}
+            elif kw == ".ends":
+                if current is None:
+                    raise InputError(path, ".ends without .subckt", card.place)
+                end_name = card.text.split()[1:2]
+                if end_name and end_name[0].lower() != current.name.lower():
+                    raise InputError(
+                        path, f".ends {end_name[0]} closes .subckt {current.name} (line {current.line})",
+                        card.place,
+                    )
+                lib.subckts[current.name.lower()] = current
+                current = None
+            elif kw == ".param":
+                target = lib.params if current is None else current.params
+                target.append((card, _param_card(card, path)))
+            elif kw in (".include", ".inc", ".lib"):
+                if current is not None:
+                    raise InputError(path, f"{kw} inside .subckt {current.name} is not supported", card.place)
+                try:
+                    self.include(card, path, stack, card.text.split()[1:])
+                except _SkipSection:
+                    section_line = card.line
+            elif kw == ".global":
+                lib.globals.update(n.lower() for n in card.text.split()[1:])
+            elif kw == ".model":
+                _model(card, path, lib)
+            elif kw in (".option", ".options", ".opt"):
+                found = _SCALE.search(card.text)
+                if found:
+                    lib.scale = _scale_value(found.group(1), path, card.place)
+            elif kw == ".control":
+                control_line = card.line
+            elif kw.startswith("."):
+                if current is not None:
+                    raise InputError(path, f"{kw} is not allowed inside .subckt {current.name}", card.place)
+                self.bench.append(kw)
+            elif current is None:
+                self.bench.append(card.text.split()[0])
+            else:
+                _element(card, path, current, names)
+        if current is not None:
+            raise InputError(path, f".subckt {current.name} has no .ends", f"line {current.line}")
+        if control_line:
+            raise InputError(path, ".control has no .endc", f"line {control_line}")
+
+
+class _SkipSection(Exception):
+    """A ``.lib SECTION`` opening met while reading a file whole."""
+
+
+def _scale_value(text: str, path: str, place: str) -> float:
+    from extract.netlist.expressions import ExpressionError, value_of
+
+    try:
+        value = value_of(text, {})
+    except ExpressionError as exc:
+        raise InputError(path, f".option scale: {exc}", place) from None
+    if not 1e-12 <= value <= 1.0:
+        raise InputError(path, f".option scale={text}: must be between 1e-12 and 1 (metres per unit)", place)
+    return value
+
+
 def parse_library(text: str, path: str) -> Library:
     """Subcircuit definitions, parameters and models of a netlist.
 
@@ -169,7 +357,9 @@ def parse_library(text: str, path: str) -> Library:
     text : str
         The netlist.
     path : str
-        For messages.
+        For messages, and the folder that ``.include`` and ``.lib`` paths
+        are relative to.  A name ending in ``.cdl`` (any case) makes the
+        dialect CDL.
 
     Returns
     -------
@@ -178,8 +368,18 @@ def parse_library(text: str, path: str) -> Library:
     Raises
     ------
     InputError
-        Structural errors (unbalanced ``.subckt``/``.ends``, ``.include``,
-        unsupported elements, duplicates), naming the line.
+        Structural errors (unbalanced ``.subckt``/``.ends``, unsupported
+        elements, duplicates, include cycles, missing included files),
+        naming the file and line.
+
+    Notes
+    -----
+    ``.include FILE`` and ``.lib FILE SECTION`` are followed, relative to
+    the including file, when what they bring defines subcircuits and no
+    ``.model``; anything else is a model library and is skipped unread
+    (listed in :attr:`Library.skipped`).  A byte-level scan decides this
+    before any parsing, so a foundry model library costs one read, not a
+    parse.  Otherwise one pass over the cards, linear in the text read.
 
     Examples
     --------
@@ -187,69 +387,24 @@ def parse_library(text: str, path: str) -> Library:
     >>> sub = lib.subckts["inv"]
     >>> sub.ports, [pos[0] for _, pos, _ in sub.elements]
     (['a', 'y', 'vdd', 'vss'], ['MP'])
+    >>> parse_library(".option scale=1e-6\\n.SUBCKT A y\\n.ENDS", "a.cdl").scale
+    1e-06
     """
-    lib = Library()
-    current: Subckt | None = None
-    names: dict[str, int] = {}
-    control_line = 0
-    bench: list[str] = []
-    for card in read_cards(text, path):
-        kw = card.keyword
-        if control_line:
-            if kw == ".endc":
-                control_line = 0
-            continue
-        if kw == ".end":
-            break
-        if kw == ".subckt":
-            if current is not None:
-                raise InputError(
-                    path, f".subckt inside .subckt {current.name} (line {current.line}); "
-                    "nested definitions are not supported", card.place,
-                )
-            current = _start_subckt(card, path, lib)
-            names = {}
-        elif kw == ".ends":
-            if current is None:
-                raise InputError(path, ".ends without .subckt", card.place)
-            end_name = card.text.split()[1:2]
-            if end_name and end_name[0].lower() != current.name.lower():
-                raise InputError(
-                    path, f".ends {end_name[0]} closes .subckt {current.name} (line {current.line})",
-                    card.place,
-                )
-            lib.subckts[current.name.lower()] = current
-            current = None
-        elif kw == ".param":
-            target = lib.params if current is None else current.params
-            target.append((card, _param_card(card, path)))
-        elif kw in (".include", ".inc", ".lib"):
-            raise InputError(
-                path, f"{kw} is not supported: put every subcircuit in this one file "
-                "(device parameters come from the tech file)", card.place,
-            )
-        elif kw == ".global":
-            lib.globals.update(n.lower() for n in card.text.split()[1:])
-        elif kw == ".model":
-            _model(card, path, lib)
-        elif kw == ".control":
-            control_line = card.line
-        elif kw.startswith("."):
-            if current is not None:
-                raise InputError(path, f"{kw} is not allowed inside .subckt {current.name}", card.place)
-            bench.append(kw)
-        elif current is None:
-            bench.append(card.text.split()[0])
-        else:
-            _element(card, path, current, names)
-    if current is not None:
-        raise InputError(path, f".subckt {current.name} has no .ends", f"line {current.line}")
-    if control_line:
-        raise InputError(path, ".control has no .endc", f"line {control_line}")
+    parser = _Parser(path)
+    parser.lib.files[os.path.abspath(path)] = path
+    parser.read(text, path, (os.path.normpath(os.path.abspath(path)),))
+    lib = parser.lib
+    bench = parser.bench
     if bench:
         lib.findings.append(Finding(
             f"{path}: ignored {len(bench)} line(s) outside any .subckt (test bench: "
             f"{', '.join(sorted(set(bench), key=str.lower)[:6])}{', ...' if len(set(bench)) > 6 else ''})"
+        ))
+    if lib.skipped:
+        lib.findings.append(Finding(
+            f"{path}: skipped {len(lib.skipped)} included model librar{'y' if len(lib.skipped) == 1 else 'ies'} "
+            f"(device parameters come from the tech file): {', '.join(lib.skipped[:3])}"
+            f"{f' and {len(lib.skipped) - 3} more' if len(lib.skipped) > 3 else ''}"
         ))
     return lib
 

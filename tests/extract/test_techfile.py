@@ -289,7 +289,7 @@ CASES = [
     # missing required tables and keys
     ({"process": DELETE}, "process", "required table is missing"),
     ({"nets": DELETE}, "nets", "required table is missing"),
-    ({"layers": DELETE}, "layers", "required table is missing"),
+    ({"layers": {}}, "layers", "needs at least one layer of kind 'diffusion'"),
     ({"mos": DELETE}, "mos", "required table is missing"),
     ({"mos.pmos": DELETE}, "mos.pmos", "required table is missing"),
     ({"process.vdd": DELETE}, "process.vdd", "required key is missing"),
@@ -442,3 +442,50 @@ def test_grading_exponent_accepted_exactly_in_unit_interval(mj):
 def test_guard_accepted_exactly_below_vdd(guard):
     # Source: README tech-file reference — check.guard < 0 or >= vdd is impossible (vdd = 1.2 here).
     accepted_iff("check.guard", guard, 0 <= guard < 1.2, lambda t: t.guard)
+
+
+def test_a_tech_file_for_netlists_needs_no_layers():
+    """[layers] may be left out: such a file reads netlists only, and a
+    layout read with it is refused with a line naming the tech file."""
+    from extract.layout.pipeline import tech_layers
+
+    text = DSK18.read_text()
+    start = text.index("[layers.active]")
+    end = text.index("[mos.nmos]")
+    tech = parse_tech(text[:start] + text[end:], "netlists.toml")
+    assert tech.layers == {}
+    with pytest.raises(InputError) as err:
+        tech_layers(tech)
+    assert err.value.line().startswith("netlists.toml: layers: has no [layers] tables")
+
+
+@pytest.mark.parametrize("table, place, message", [
+    ("[netlist]\nscale = 0", "netlist.scale", "must be > 0"),
+    ("[netlist]\nscale = 2.0", "netlist.scale", "must be between 1e-12 and 1"),
+    ("[netlist]\nunits = 1", "netlist.units", "unknown key"),
+    ("[models]\nlibrary = 'm.lib'\nnmos = 'n'", "models.pmos", "required key is missing"),
+    ("[models]\nlibrary = 'm.lib'\nnmos = 'n'\npmos = 'p p'", "models.pmos", "not a SPICE device name"),
+    ("[models]\nlibrary = 'm.lib'\nnmos = 'n'\npmos = 'p'\ncorners = ['tt', 'TT']", "models.corners[1]",
+     "listed twice"),
+    ("[check]\nevaluation_ns = -1", "check.evaluation_ns", "must be > 0"),
+])
+def test_netlist_models_and_evaluation_keys_are_checked(table, place, message):
+    """The tables added for netlists and foundry models are validated like
+    the rest (keys from the README's tech-file reference)."""
+    text = DSK18.read_text().replace("[check]\nguard", "[checkx]\nguard") if "[check]" in table else DSK18.read_text()
+    if "[check]" in table:
+        text = text.replace("[checkx]\nguard = 0.05        # V above the receiver threshold\n", "")
+    with pytest.raises(InputError) as err:
+        parse_tech(text + "\n" + table + "\n", "t.toml")
+    assert err.value.line().startswith(f"t.toml: {place}: ") and message in err.value.line(), err.value.line()
+
+
+def test_models_library_is_relative_to_the_tech_file(tmp_path):
+    """models.library is taken relative to the tech file's folder."""
+    path = tmp_path / "t.toml"
+    path.write_text(DSK18.read_text() + "\n[models]\nlibrary = 'pdk/m.lib'\ncorners = ['tt']\n"
+                    "nmos = 'nfet'\npmos = 'pfet'\n[netlist]\nscale = 1e-6\n")
+    tech = load_tech(path)
+    assert tech.models.library == str(tmp_path / "pdk" / "m.lib")
+    assert tech.models.corners == ("tt",) and tech.netlist_scale == 1e-6
+

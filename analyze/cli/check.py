@@ -6,7 +6,8 @@ from __future__ import annotations
 import sys
 
 from analyze.cli.output import check_outputs, emit
-from analyze.report.json_report import devices_json, dumps, findings_json, header, nets_json, stage_json
+from analyze.report.json_report import (couplings_json, devices_json, dumps, findings_json, header, nets_json,
+                                        stage_json)
 from analyze.report.text import check_header, stage_block
 from analyze.search.analysis import analyse_circuit
 
@@ -20,6 +21,7 @@ def check_report(circuit, tech, recognition, results) -> dict:
                        "note": recognition.clock_note}
     report["nets"] = nets_json(circuit)
     report["devices"] = devices_json(circuit)
+    report["couplings"] = couplings_json(circuit)
     report["stages"] = [stage_json(r, circuit) for r in results]
     report["findings"] = findings_json(list(circuit.findings) + list(recognition.findings))
     report["status"] = "fail" if any(r.status == "fail" for r in results) else "pass"

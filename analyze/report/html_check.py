@@ -174,6 +174,17 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
     return "\n".join(out)
 
 
+def _couplings(circuit) -> str:
+    """Coupling capacitance between signal nets (netlists), largest first."""
+    if not circuit.couplings:
+        return ""
+    rows = [[c.net_a, c.net_b, f"{c.cap_ff:.3f}", str(c.elements)]
+            for c in sorted(circuit.couplings, key=lambda c: (-c.cap_ff, c.net_a, c.net_b))[:MAX_SUMMARY]]
+    note = (f'<p class="note">{len(circuit.couplings)} net pairs; each is also counted to ground on both nets '
+            "(the droop is computed as if the other end were held still).</p>")
+    return "<h2>Coupling capacitance</h2>" + note + table(["net", "net", "fF", "capacitors"], rows, cls="couplings")
+
+
 def _findings(findings) -> str:
     if not findings:
         return ""
@@ -224,8 +235,8 @@ def check_html(circuit, tech, recognition, results, *, constraints=None, max_pat
     marks, keep = _marks(results, chosen)
     head = [f"<h1>Charge sharing in cell {html.escape(circuit.cell)}</h1>",
             f"<p>Process {html.escape(tech.name)}, VDD {tech.vdd:g} V, guard {tech.guard:g} V. "
-            f"Layout <code>{html.escape(circuit.source or '–')}</code>: {len(circuit.devices)} transistors, "
-            f"{len(circuit.nets)} nets.</p>"]
+            f"{'Layout' if circuit.shapes else 'Netlist'} <code>{html.escape(circuit.source or '–')}</code>: "
+            f"{len(circuit.devices)} transistors, {len(circuit.nets)} nets.</p>"]
     if recognition.clock_note:
         head.append(f"<p>Clock: {html.escape(recognition.clock_note)}.</p>")
     if n == 0:
@@ -234,8 +245,13 @@ def check_html(circuit, tech, recognition, results, *, constraints=None, max_pat
         sym = "✓" if failed == 0 else "✗"
         head.append(f'<p class="verdict">{sym} {n - failed} of {n} stage{"s" if n != 1 else ""} pass'
                     f'{"" if failed == 0 else f", {failed} fail"}.</p>')
-    body = head + [_findings(list(circuit.findings) + list(recognition.findings)), "<h2>Layout</h2>",
-                   layout_figure(circuit, tech, marks, keep, max_shapes)]
+    if circuit.shapes:
+        picture = ["<h2>Layout</h2>", layout_figure(circuit, tech, marks, keep, max_shapes)]
+    else:
+        picture = ['<p class="note">No layout picture: this check read a netlist, which has no geometry. '
+                   "Net capacitances come from the netlist's AD/AS/PD/PS and C elements (or the tech "
+                   "file's pre-layout estimates where a device gives none).</p>"]
+    body = head + [_findings(list(circuit.findings) + list(recognition.findings))] + picture + [_couplings(circuit)]
     if n:
         body += ["<h2>Stages</h2>", _summary(results, set(chosen), max_summary)]
     if len(chosen) < n:

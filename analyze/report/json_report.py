@@ -90,6 +90,13 @@ def devices_json(circuit: Circuit) -> list[dict]:
     ]
 
 
+def couplings_json(circuit: Circuit) -> list[dict]:
+    """``couplings[]``: capacitance between two signal nets (netlists with
+    coupling capacitors), also counted in both nets' ``wire`` part."""
+    return [{"nets": [c.net_a, c.net_b], "cap_ff": rounded(c.cap_ff), "elements": c.elements}
+            for c in circuit.couplings]
+
+
 def worst_case_json(wc) -> dict | None:
     if wc is None:
         return None
@@ -112,6 +119,7 @@ def extract_report(circuit: Circuit, tech) -> dict:
     report = header(circuit.cell, tech.vdd)
     report["nets"] = nets_json(circuit)
     report["devices"] = devices_json(circuit)
+    report["couplings"] = couplings_json(circuit)
     report["findings"] = findings_json(circuit.findings)
     return report
 

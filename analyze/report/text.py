@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from extract.circuit import Circuit
 
-__all__ = ["stage_block", "check_header", "fmt_loc"]
+__all__ = ["stage_block", "check_header", "couplings_on", "fmt_loc"]
 
 
 def fmt_loc(loc) -> str:
@@ -22,9 +22,29 @@ def check_header(circuit: Circuit, tech, recognition) -> str:
     n = len(recognition.stages)
     what = "no dynamic stage" if n == 0 else f"{n} dynamic stage{'s' if n != 1 else ''}"
     lines = [f"cell {circuit.cell}  (process {tech.name}, VDD {tech.vdd:g} V): {what}"]
+    if not circuit.shapes and circuit.source:
+        lines.append(f"  from netlist {circuit.source}: {len(circuit.devices)} transistors, {len(circuit.nets)} nets")
     if n and recognition.clock_note:
         lines.append(f"  clock: {recognition.clock_note}")
+    if circuit.couplings:
+        total = sum(c.cap_ff for c in circuit.couplings)
+        top = max(circuit.couplings, key=lambda c: (c.cap_ff, c.net_a, c.net_b))
+        lines.append(f"  coupling capacitance: {len(circuit.couplings)} net pairs, {total:.3f} fF in all "
+                     f"(largest {top.net_a}-{top.net_b} {top.cap_ff:.3f} fF), counted to ground on both nets")
     return "\n".join(lines) + "\n"
+
+
+def couplings_on(circuit: Circuit, nets) -> list:
+    """The couplings of ``circuit`` with at least one end in ``nets``, largest first.
+
+    >>> from extract.circuit import Coupling
+    >>> c = Circuit("c", {}, [], couplings=[Coupling("a", "b", 1.0), Coupling("c", "d", 2.0)])
+    >>> [(k.net_a, k.net_b) for k in couplings_on(c, {"b"})]
+    [('a', 'b')]
+    """
+    nets = set(nets)
+    found = [c for c in circuit.couplings if c.net_a in nets or c.net_b in nets]
+    return sorted(found, key=lambda c: (-c.cap_ff, c.net_a, c.net_b))
 
 
 def _pattern(inputs: dict[str, int]) -> str:
@@ -41,7 +61,8 @@ def stage_block(result, circuit: Circuit, tech) -> str:
         foot = f"footed (header {st.footer} to {st.rail})" if st.footed else "footless (no header)"
     verdict = "PASS" if result.status == "pass" else "FAIL"
     out = [f"stage {st.dynamic_node}: {kind}, {foot}, clock {st.clock}   [{verdict}]"]
-    out.append(f"  at            {fmt_loc(st.location_um)}")
+    if st.location_um is not None:
+        out.append(f"  at            {fmt_loc(st.location_um)}")
     out.append(f"  precharge     {' '.join(st.precharge) or '-'}")
     out.append(f"  keepers       {' '.join(st.keepers) or 'none'}")
     if st.receivers:
@@ -67,8 +88,13 @@ def stage_block(result, circuit: Circuit, tech) -> str:
             cap = net.cap_ff if net else 0.0
             tag = " (dynamic node)" if name == st.dynamic_node else ""
             tag = tag or (" (precharged)" if name in st.secondary_precharge else "")
-            loc = fmt_loc(net.location_um if net else None)
-            out.append(f"    {name:<{width}}  {cap:8.3f} fF  {loc}{tag}")
+            loc = f"  {fmt_loc(net.location_um)}" if net and net.location_um is not None else ""
+            out.append(f"    {name:<{width}}  {cap:8.3f} fF{loc}{tag}")
+        coupled = couplings_on(circuit, names)
+        if coupled:
+            shown = ", ".join(f"{c.net_a}-{c.net_b} {c.cap_ff:.3f} fF" for c in coupled[:4])
+            more = f" and {len(coupled) - 4} more" if len(coupled) > 4 else ""
+            out.append(f"  coupling      {shown}{more} (in the wire parts above)")
         out.append(f"  v_final       {wc.v_final:.3f} V   (lossless estimate {wc.v_final_linear:.3f} V)")
         out.append(f"  droop         {wc.droop_v:.3f} V")
     sign = "+" if result.margin_v >= 0 else ""

@@ -471,9 +471,10 @@ class _Builder:
             listing = ", ".join(f"{n} {k}" for k, n in sorted(self.left_out.items()))
             self.findings.append(Finding(f"{self.path}: left out of the circuit: {listing}"))
         if self.ignored:
-            listing = "; ".join(f"{k} ({', '.join(sorted(v)[:3])}{', ...' if len(v) > 3 else ''})"
-                                for k, v in sorted(self.ignored.items()))
-            self.findings.append(Finding(f"{self.path}: ignored instance parameters: {listing}"))
+            on = sorted(set().union(*self.ignored.values()))
+            self.findings.append(Finding(
+                f"{self.path}: ignored instance parameters (not used by the analysis): "
+                f"{', '.join(sorted(self.ignored))} (on {', '.join(on[:3])}{' and more' if len(on) > 3 else ''})"))
         nets: dict[str, Net] = {}
         for key, shown in self.names.items():
             parts = caps[key] + CapParts(wire=self.wire.get(key, 0.0))

@@ -558,7 +558,7 @@ def test_netlist_circuit_and_no_counted_pattern(checked):
     bare = _renamed(c, {}, shapes=False)
     r = StageResult(res[0].stage, threshold_v=0.9, margin_v=0.9, status="pass", worst_case=None, counted_patterns=0)
     text = check_html(bare, t, rec, [r])
-    assert "No layout geometry to draw" in text and "No counted pattern" in text
+    assert "No layout picture: this check read a netlist" in text and "No counted pattern" in text
     assert '<svg class="patterns"' not in text and not _net_groups(Page(text))
 
 

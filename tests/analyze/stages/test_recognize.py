@@ -508,6 +508,25 @@ def test_oai21_with_one_pmos_from_supply_and_footer_like_nmos_is_static():
     assert_static_only(rows, [dsk18_tech(clock=("A",))])
 
 
+def test_aoi21_mirror_is_no_p_type_stage():
+    # The mirror image (W&H ch. 9: a p-type stage mirrors the n-type one):
+    # y = !(a + b·c), nmos a straight from ground to y (like a predischarge
+    # device), pmos a in series at VDD (like a header).  Truth table, rows
+    # a b c = 000 ... 111:
+    #   pull-up   !a·(!b + !c) : 1 1 1 0 0 0 0 0
+    #   pull-down a + b·c      : 0 0 0 1 1 1 1 1
+    rows = [
+        ("MNa", "nmos", "Y", "A", "VSS", 0.42, 0.15),
+        ("MNb", "nmos", "Y", "B", "k", 0.64, 0.15),
+        ("MNc", "nmos", "k", "C", "VSS", 0.64, 0.15),
+        ("MPa", "pmos", "VDD", "A", "m", 0.84, 0.15),
+        ("MPb", "pmos", "m", "B", "Y", 0.84, 0.15),
+        ("MPc", "pmos", "m", "C", "Y", 0.84, 0.15),
+    ] + inverter("MI", "Y", "Z")
+    assert_static_only(rows, [NO_CLOCK, dsk18_tech(clock=("A",))])
+    assert recognise(rows, NO_CLOCK).clocks == []
+
+
 def test_set_reset_gate_of_a_flip_flop_is_static_and_set_b_is_no_clock():
     # Truth table of Y = !(SET_B · (S + R)), rows SET_B S R = 000 ... 111:
     #   pull-up   !SET_B + !S·!R : 1 1 1 1 1 0 0 0

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 
 from extract.errors import Finding
 
+from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Side, Topology
 
 __all__ = ["Candidate", "ClockInference", "find_candidates", "infer_clocks"]
@@ -88,12 +89,14 @@ class ClockInference:
         return "; ".join(parts)
 
 
-def find_candidates(topo: Topology) -> list[Candidate]:
+def find_candidates(topo: Topology, static: StaticNets | None = None) -> list[Candidate]:
     """Every precharge-like structure of the circuit, both polarities.
 
     Parameters
     ----------
     topo : Topology
+    static : StaticNets, optional
+        The staticness test of ``topo`` (made when not given).
 
     Returns
     -------
@@ -118,11 +121,18 @@ def find_candidates(topo: Topology) -> list[Candidate]:
     5. no device of E is gated by X or by an inverter output fed by X
        (feedback is no evaluation input);
     6. no G-gated nmos joins X itself to ground (X would be the output of
-       an inverter of G).
+       an inverter of G);
+    7. X is not static (:class:`analyze.stages.static.StaticNets`): some
+       assignment of the gate nets of X's channel-connected component,
+       G included, leaves X joined to no rail.  A static complex gate
+       whose pull-up has one pmos straight from power and whose pull-down
+       has a series nmos on ground (a set/reset NAND in a flip-flop)
+       passes 1–6 with that input as G, and fails here.
 
     Candidates whose G is itself the node of a candidate are dropped (a
     dynamic node gating a cross-coupled keeper is no clock).
-    Cost: O(devices) with the component counts of :class:`Topology`.
+    Cost: O(devices) with the component counts of :class:`Topology`, plus
+    one staticness search per net X that passes 1–6.
 
     Examples
     --------
@@ -136,6 +146,8 @@ def find_candidates(topo: Topology) -> list[Candidate]:
     >>> [(k.node, k.gate, k.footers) for k in find_candidates(Topology(c, tech))]
     [('X', 'PHI', ('MF',))]
     """
+    if static is None:
+        static = StaticNets(topo)
     raw: list[Candidate] = []
     for side in SIDES:
         for x in topo.attached_nets(side.pull_type, side.supply_role):
@@ -159,6 +171,8 @@ def find_candidates(topo: Topology) -> list[Candidate]:
                     continue
                 if any(h != g and not topo.is_rail(h) and h in comp.gate_count for h in by_gate):
                     continue
+                if static(x):
+                    break
                 raw.append(Candidate(side, x, g, topo.names(devs), topo.names(footers)))
     nodes = {c.node for c in raw}
     kept = [c for c in raw if c.gate not in nodes]
@@ -170,7 +184,9 @@ def _declared(topo: Topology) -> list[str]:
     return sorted(n for n in nets if topo.role(n) == "clock")
 
 
-def infer_clocks(topo: Topology, candidates: list[Candidate] | None = None) -> ClockInference:
+def infer_clocks(
+    topo: Topology, candidates: list[Candidate] | None = None, static: StaticNets | None = None
+) -> ClockInference:
     """Decide the clock nets.
 
     Parameters
@@ -178,6 +194,8 @@ def infer_clocks(topo: Topology, candidates: list[Candidate] | None = None) -> C
     topo : Topology
     candidates : list of Candidate, optional
         From :func:`find_candidates` (computed when not given).
+    static : StaticNets, optional
+        Passed to :func:`find_candidates` when it is called here.
 
     Returns
     -------
@@ -204,9 +222,11 @@ def infer_clocks(topo: Topology, candidates: list[Candidate] | None = None) -> C
     Candidates still unexplained become findings.  One pmos and one nmos
     in series between the rails, gated by two different nets, read both
     ways (an n-type stage clocked by one, a p-type stage clocked by the
-    other); unless one of the two is declared they stay unexplained.  Static gates never
-    become candidates (see :func:`find_candidates`), so their inputs are
-    never taken for clocks.  Cost: O(candidates · clocks).
+    other); unless one of the two is declared they stay unexplained.  Static
+    nets never become candidates (:func:`find_candidates`, rule 7), so a
+    net whose only evidence of being a clock comes from static gates — a
+    data or set/reset input, or a clock feeding a clocked static NAND — is
+    never taken for a clock.  Cost: O(candidates · clocks).
 
     Examples
     --------
@@ -221,7 +241,7 @@ def infer_clocks(topo: Topology, candidates: list[Candidate] | None = None) -> C
     'clock PHI inferred: the only net gating precharge-like devices (MP on X)'
     """
     if candidates is None:
-        candidates = find_candidates(topo)
+        candidates = find_candidates(topo, static)
     reasons = {n: "from tech file" for n in _declared(topo)}
     declared = set(reasons)
     # Name a node that drives a gate (a dynamic node rather than an internal

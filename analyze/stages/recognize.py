@@ -20,6 +20,7 @@ from extract.tech import Tech
 
 from analyze.stages.clocks import infer_clocks
 from analyze.stages.stage import Stage
+from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Side, Topology
 
 __all__ = ["Recognition", "find_stages"]
@@ -72,7 +73,11 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
 
     1. Footers are nmos gated by a clock from ground to a net (their
        *footer nodes*); precharged nets are non-rail, non-clock nets with a
-       clock-gated pmos from power.
+       clock-gated pmos from power that are not static
+       (:class:`analyze.stages.static.StaticNets`: some assignment of the
+       gate nets around them, the clock included, leaves them joined to
+       no rail — a clocked static NAND or a set/reset gate of a
+       flip-flop never is a stage).
     2. Precharged nets are grouped by nmos channels (not through rails or
        footer nodes, not through footers).  In a group the dynamic nodes
        are the precharged nets that drive a gate; when none does, those
@@ -97,7 +102,8 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
        without precharge).
 
     Cost: O(devices) for the indices and components, plus one search per
-    precharged net over its own evaluation network.
+    precharged net over its own evaluation network, plus one staticness
+    search per net with a clocked pull device from the supply.
 
     Examples
     --------
@@ -118,12 +124,13 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
     'clock CLK from tech file'
     """
     topo = Topology(circuit, tech)
-    inference = infer_clocks(topo)
+    static = StaticNets(topo)
+    inference = infer_clocks(topo, static=static)
     clocks = set(inference.clocks)
     stages: list[Stage] = []
     findings = list(inference.findings)
     for side in SIDES:
-        found, notes = _side_stages(topo, side, clocks)
+        found, notes = _side_stages(topo, side, clocks, static)
         stages += found
         findings += notes
     stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
@@ -139,7 +146,7 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
 class _SideContext:
     """Clocked devices of one polarity, shared by the steps below."""
 
-    def __init__(self, topo: Topology, side: Side, clocks: set[str]):
+    def __init__(self, topo: Topology, side: Side, clocks: set[str], static: StaticNets):
         self.topo, self.side, self.clocks = topo, side, clocks
         devs = topo.devices
         self.footers: set[int] = set()
@@ -154,7 +161,7 @@ class _SideContext:
             if topo.role(net) == "clock":
                 continue
             on = [i for i in topo.attached(side.pull_type, side.supply_role, net) if devs[i].gate in clocks]
-            if on:
+            if on and not static(net):
                 self.precharged[net] = on
 
     def search(self, x: str, stop: set[str] = frozenset()):
@@ -193,8 +200,8 @@ def _dynamic_nodes(ctx: _SideContext) -> list[str]:
     return sorted(dynamic)
 
 
-def _side_stages(topo: Topology, side: Side, clocks: set[str]):
-    ctx = _SideContext(topo, side, clocks)
+def _side_stages(topo: Topology, side: Side, clocks: set[str], static: StaticNets):
+    ctx = _SideContext(topo, side, clocks, static)
     stages: list[Stage] = []
     findings: list[Finding] = []
     for x, pre in sorted(ctx.precharged.items()):

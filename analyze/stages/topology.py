@@ -64,7 +64,7 @@ _RAILS = ("power", "ground")
 
 @dataclass
 class Component:
-    """One channel-connected component of one device type.
+    """One channel-connected component of one device type (or of both).
 
     Nets are joined by the channels of the component's devices; supply
     rails are never joined through (a device with a terminal on a rail
@@ -105,8 +105,8 @@ class Topology:
     Notes
     -----
     Building costs O(devices); every index is a dict of lists.
-    Components are computed per device type on first use with a
-    union-find, O(devices · α).
+    Components are computed per device type (or for both types together)
+    on first use with a union-find, O(devices · α).
 
     Examples
     --------
@@ -243,8 +243,9 @@ class Topology:
         ]
 
     # -- channel-connected components -------------------------------------
-    def component_of(self, dtype: str, net: str) -> Component | None:
-        """The ``dtype`` channel-connected component containing ``net``."""
+    def component_of(self, dtype: str | None, net: str) -> Component | None:
+        """The ``dtype`` channel-connected component containing ``net``
+        (``dtype`` None: joined through nmos and pmos channels alike)."""
         index, comps = self._components_of(dtype)
         k = index.get(net)
         return None if k is None else comps[k]
@@ -254,7 +255,7 @@ class Topology:
             self._components[dtype] = self._build_components(dtype)
         return self._components[dtype]
 
-    def _build_components(self, dtype: str):
+    def _build_components(self, dtype: str | None):
         parent: dict[str, str] = {}
 
         def find(a: str) -> str:
@@ -265,7 +266,8 @@ class Topology:
                 parent[a], a = root, parent[a]
             return root
 
-        members = [i for i, d in enumerate(self.devices) if d.type == dtype]
+        types = ("nmos", "pmos") if dtype is None else (dtype,)
+        members = [i for i, d in enumerate(self.devices) if d.type in types]
         for i in members:
             d = self.devices[i]
             ends = [n for n in (d.drain, d.source) if not self.is_rail(n)]

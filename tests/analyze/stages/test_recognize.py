@@ -16,80 +16,20 @@ Every circuit here is built by hand.  What each test checks against:
 from __future__ import annotations
 
 import random
-try:
-    import tomllib
-except ModuleNotFoundError:  # Python 3.10
-    import tomli as tomllib
-from pathlib import Path
 
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from extract.circuit import Circuit, Device, Net
-from extract.tech import MosParams, NetRoles, Tech
+from extract.tech import Tech
 
 from analyze.stages.recognize import Recognition, find_stages
 from analyze.stages.stage import Receiver
 
-DSK18 = Path(__file__).resolve().parents[3] / "sample_layouts" / "dsk18.toml"
-
-
-def dsk18_tech(clock: tuple[str, ...] | None = None) -> Tech:
-    """A Tech built in code from the demo tech file's [process], [nets] and
-    [mos] tables (the tech-file loader is tested elsewhere)."""
-    raw = tomllib.loads(DSK18.read_text())
-    nets = raw["nets"]
-    roles = NetRoles(
-        power=tuple(nets["power"]),
-        ground=tuple(nets["ground"]),
-        clock=tuple(nets.get("clock", ())) if clock is None else clock,
-    )
-    mos = {
-        t: MosParams(type=t, **{k: v for k, v in p.items() if k != "models"}, models=tuple(p["models"]))
-        for t, p in raw["mos"].items()
-    }
-    return Tech(raw["process"]["name"], raw["process"]["vdd"], roles, {}, mos)
-
-
-def make_circuit(rows, tech: Tech, name: str = "cell") -> Circuit:
-    """A Circuit from ``(name, type, drain, gate, source, W, L)`` rows; net
-    roles from the tech, every net and device given a distinct location."""
-    devices = [
-        Device(n, t, d, g, s, w, l, location_um=(float(k), 1.0))
-        for k, (n, t, d, g, s, w, l) in enumerate(rows)
-    ]
-    names = sorted({x for dev in devices for x in (dev.drain, dev.gate, dev.source)})
-    nets = {
-        n: Net(n, role=tech.role_of(n), location_um=(float(k), 0.0), labelled=True)
-        for k, n in enumerate(names)
-    }
-    return Circuit(name, nets, sorted(devices, key=lambda d: d.name))
-
-
-TECH = dsk18_tech()
-NO_CLOCK = dsk18_tech(clock=())
+from stage_circuits import NAND3_FOOTED, NO_CLOCK, TECH, dsk18_tech, inverter, make_circuit
 
 
 def recognise(rows, tech: Tech = TECH) -> Recognition:
     return find_stages(make_circuit(rows, tech), tech)
-
-
-def inverter(prefix, inp, out):
-    return [
-        (prefix + "N", "nmos", out, inp, "VSS", 0.5, 0.18),
-        (prefix + "P", "pmos", out, inp, "VDD", 1.0, 0.18),
-    ]
-
-
-# A footed dynamic NAND3 with keeper and output inverter (W&H ch. 9).
-NAND3_FOOTED = [
-    ("MPC", "pmos", "X", "CLK", "VDD", 1.0, 0.18),
-    ("MK", "pmos", "X", "OUT", "VDD", 0.3, 0.36),
-    ("MA", "nmos", "X", "A", "n1", 1.5, 0.18),
-    ("MB", "nmos", "n1", "B", "n2", 1.5, 0.18),
-    ("MC", "nmos", "n2", "C", "n3", 1.5, 0.18),
-    ("MF", "nmos", "n3", "CLK", "VSS", 2.0, 0.18),
-] + inverter("MI", "X", "OUT")
 
 
 def test_footed_nand3_keeper_and_inverter():
@@ -505,6 +445,198 @@ def test_footers_on_two_nets_kept_with_finding():
     (s,) = r.stages
     assert (s.footer, s.footer_node, s.internal_nodes) == ("MF1", "f1", ("f2",))
     assert len(r.findings) == 1 and "footers on several nets (f1, f2)" in r.findings[0].message
+
+# -- static gates are never dynamic stages ---------------------------------
+# Each circuit's outcome comes from its truth table, written out by hand in
+# the test: a node whose pull-up conducts for every input pattern in which
+# its pull-down does not is driven for every input, so it is static.
+
+
+def oai21(y, a, b, c, tag):
+    """y = !(a·(b + c)): pmos a straight from VDD to y, pmos b, c in series;
+    nmos a in series at ground under nmos b, c in parallel."""
+    return [
+        (f"MP{tag}a", "pmos", y, a, "VDD", 0.42, 0.15),
+        (f"MP{tag}b", "pmos", "VDD", b, f"m{tag}", 0.84, 0.15),
+        (f"MP{tag}c", "pmos", f"m{tag}", c, y, 0.84, 0.15),
+        (f"MN{tag}a", "nmos", "VSS", a, f"s{tag}", 0.42, 0.15),
+        (f"MN{tag}b", "nmos", f"s{tag}", b, y, 0.64, 0.15),
+        (f"MN{tag}c", "nmos", f"s{tag}", c, y, 0.64, 0.15),
+    ]
+
+
+def set_reset_flip_flop_slice():
+    """The set/reset gate of a flip-flop with active-low set and reset:
+    Y = !(SET_B · (S + R)), R = !RESET_B, S the storage node of a
+    transmission-gate latch clocked by CK = !CLK_N (pass gate open when
+    CKB = !CK is high, clocked feedback inverter of Y), Q = !Y."""
+    return (
+        oai21("Y", "SET_B", "S", "R", "1")
+        + inverter("MIR", "RESET_B", "R")
+        + inverter("MIC", "CLK_N", "CK")
+        + inverter("MIK", "CK", "CKB")
+        + inverter("MID", "D", "d")
+        + inverter("MIQ", "Y", "Q")
+        + [
+            ("MTN", "nmos", "d", "CKB", "S", 0.36, 0.15),
+            ("MTP", "pmos", "d", "CK", "S", 0.42, 0.15),
+            ("MFN1", "nmos", "S", "CK", "f1", 0.36, 0.15),
+            ("MFN2", "nmos", "f1", "Y", "VSS", 0.42, 0.15),
+            ("MFP1", "pmos", "S", "CKB", "f2", 0.42, 0.15),
+            ("MFP2", "pmos", "f2", "Y", "VDD", 0.42, 0.15),
+        ]
+    )
+
+
+def assert_static_only(rows, techs=(TECH, NO_CLOCK)):
+    for tech in techs:
+        r = recognise(rows, tech)
+        assert r.stages == [] and r.findings == []
+        assert not r.clock_inferred
+
+
+def test_oai21_with_one_pmos_from_supply_and_footer_like_nmos_is_static():
+    # Truth table of y = !(a·(b + c)), rows a b c = 000 ... 111:
+    #   pull-up   !a + !b·!c : 1 1 1 1 1 0 0 0
+    #   pull-down a·(b + c)  : 0 0 0 0 0 1 1 1
+    # Complementary, so static; yet pmos a alone from VDD and nmos a alone
+    # at ground look like a precharge and a footer gated by a.
+    rows = oai21("Y", "A", "B", "C", "") + inverter("MI", "Y", "Z")
+    assert_static_only(rows)
+    assert recognise(rows, NO_CLOCK).clocks == []
+    # A declared clock on that input changes nothing: a clock is an input.
+    assert_static_only(rows, [dsk18_tech(clock=("A",))])
+
+
+def test_aoi21_mirror_is_no_p_type_stage():
+    # The mirror image (W&H ch. 9: a p-type stage mirrors the n-type one):
+    # y = !(a + b·c), nmos a straight from ground to y (like a predischarge
+    # device), pmos a in series at VDD (like a header).  Truth table, rows
+    # a b c = 000 ... 111:
+    #   pull-up   !a·(!b + !c) : 1 1 1 0 0 0 0 0
+    #   pull-down a + b·c      : 0 0 0 1 1 1 1 1
+    rows = [
+        ("MNa", "nmos", "Y", "A", "VSS", 0.42, 0.15),
+        ("MNb", "nmos", "Y", "B", "k", 0.64, 0.15),
+        ("MNc", "nmos", "k", "C", "VSS", 0.64, 0.15),
+        ("MPa", "pmos", "VDD", "A", "m", 0.84, 0.15),
+        ("MPb", "pmos", "m", "B", "Y", 0.84, 0.15),
+        ("MPc", "pmos", "m", "C", "Y", 0.84, 0.15),
+    ] + inverter("MI", "Y", "Z")
+    assert_static_only(rows, [NO_CLOCK, dsk18_tech(clock=("A",))])
+    assert recognise(rows, NO_CLOCK).clocks == []
+
+
+def test_set_reset_gate_of_a_flip_flop_is_static_and_set_b_is_no_clock():
+    # Truth table of Y = !(SET_B · (S + R)), rows SET_B S R = 000 ... 111:
+    #   pull-up   !SET_B + !S·!R : 1 1 1 1 1 0 0 0
+    #   pull-down SET_B·(S + R)  : 0 0 0 0 0 1 1 1
+    # and the latch node S is driven for every CK (pass gate when CK = 0,
+    # feedback inverter of Y when CK = 1; CKB = !CK).  So nothing is
+    # dynamic, with clocks inferred or declared (the clock, or even the set
+    # and reset inputs), and SET_B is never taken for a clock.
+    rows = set_reset_flip_flop_slice()
+    r = recognise(rows, NO_CLOCK)
+    assert (r.stages, r.findings, r.clocks) == ([], [], [])
+    for clock in (("CLK_N",), ("CLK_N", "SET_B", "RESET_B")):
+        r = recognise(rows, dsk18_tech(clock=clock))
+        assert (r.stages, r.findings, r.clocks) == ([], [], sorted(clock))
+
+
+def test_set_reset_input_is_not_the_clock_beside_a_domino_stage():
+    # The footed domino NAND3 (W&H ch. 9) clocked by CLK beside the static
+    # set/reset gate: only CLK gates a precharge device and a footer of a
+    # node that can float (CLK = 1, A = B = C = 0: truth table of the NAND3
+    # pull-down, 0 unless A = B = C = 1); Y is static (truth table above).
+    r = recognise(NAND3_FOOTED + set_reset_flip_flop_slice(), NO_CLOCK)
+    assert [s.dynamic_node for s in r.stages] == ["X"]
+    assert r.clocks == ["CLK"] and r.findings == []
+    assert r.clock_note == "clock CLK inferred: gates precharge MPC and footer MF of X"
+
+
+def test_static_nand3_nor3_aoi22():
+    # Truth tables (inputs A B C, resp. A B C D, all 2^n rows):
+    #   NAND3: pull-up !A + !B + !C, pull-down A·B·C: exactly one conducts.
+    #   NOR3:  pull-up !A·!B·!C,     pull-down A + B + C.
+    #   AOI22: pull-up (!A + !B)·(!C + !D), pull-down A·B + C·D.
+    # Each pull-up is the complement of its pull-down (De Morgan), so no
+    # node is dynamic, whichever input is named CLK.
+    nand3 = [(f"MP{x}", "pmos", "Y", x, "VDD", 1.0, 0.18) for x in ("CLK", "A", "B")] + [
+        ("MNA", "nmos", "Y", "A", "s1", 1.0, 0.18),
+        ("MNB", "nmos", "s1", "B", "s2", 1.0, 0.18),
+        ("MNC", "nmos", "s2", "CLK", "VSS", 1.0, 0.18),
+    ]
+    nor3 = [
+        ("MPA", "pmos", "VDD", "CLK", "m1", 2.0, 0.18),
+        ("MPB", "pmos", "m1", "A", "m2", 2.0, 0.18),
+        ("MPC", "pmos", "m2", "B", "Y", 2.0, 0.18),
+    ] + [(f"MN{x}", "nmos", "Y", x, "VSS", 0.5, 0.18) for x in ("CLK", "A", "B")]
+    aoi22 = [
+        ("MPA", "pmos", "VDD", "A", "m", 1.0, 0.18),
+        ("MPB", "pmos", "VDD", "B", "m", 1.0, 0.18),
+        ("MPC", "pmos", "m", "CLK", "Y", 1.0, 0.18),
+        ("MPD", "pmos", "m", "D", "Y", 1.0, 0.18),
+        ("MNA", "nmos", "Y", "A", "k1", 1.0, 0.18),
+        ("MNB", "nmos", "k1", "B", "VSS", 1.0, 0.18),
+        ("MNC", "nmos", "Y", "CLK", "k2", 1.0, 0.18),
+        ("MND", "nmos", "k2", "D", "VSS", 1.0, 0.18),
+    ]
+    for rows in (nand3, nor3, aoi22):
+        assert_static_only(rows + inverter("MI", "Y", "Z"))
+
+
+def test_clocked_static_gate_with_clock_as_lone_pull_up_is_static():
+    # Truth table of Y = !(CLK·(A + B)), rows CLK A B = 000 ... 111:
+    #   pull-up   !CLK + !A·!B : 1 1 1 1 1 0 0 0
+    #   pull-down CLK·(A + B)  : 0 0 0 0 0 1 1 1
+    # With CLK declared, pmos CLK from VDD to Y and nmos CLK at ground look
+    # exactly like precharge and footer; the complementary pull-up (pmos A,
+    # B in series, off the supply) makes Y static all the same.
+    assert_static_only(oai21("Y", "CLK", "A", "B", "") + inverter("MI", "Y", "Z"))
+
+
+def test_transmission_gate_latch_is_no_stage():
+    # Case analysis (G, GB = !G): G = 1 opens the pass gate from d = !D; G =
+    # 0 closes the feedback tristate of Q = !S onto S; an active-low set
+    # adds pmos SET_B from VDD to S and nmos SET_B at ground under the
+    # feedback: SET_B = 0 drives S high, SET_B = 1 leaves the latch as it
+    # was.  S is driven for every input: no stage, whichever net is
+    # declared a clock (G, or SET_B, which then looks like a footer).
+    for with_set in (False, True):
+        rows = inverter("MID", "D", "d") + inverter("MIG", "G", "GB") + inverter("MIQ", "S", "Q") + [
+            ("MTN", "nmos", "d", "G", "S", 0.5, 0.15),
+            ("MTP", "pmos", "d", "GB", "S", 0.5, 0.15),
+            ("MFP1", "pmos", "VDD", "Q", "f2", 0.4, 0.15),
+            ("MFP2", "pmos", "f2", "G", "S", 0.4, 0.15),
+            ("MFN1", "nmos", "S", "GB", "f1", 0.4, 0.15),
+            ("MFN2", "nmos", "f1", "Q", "k" if with_set else "VSS", 0.4, 0.15),
+        ]
+        if with_set:
+            rows += [("MSP", "pmos", "VDD", "SET_B", "S", 0.4, 0.15), ("MSN", "nmos", "k", "SET_B", "VSS", 0.4, 0.15)]
+        assert_static_only(rows, [NO_CLOCK, dsk18_tech(clock=("G",)), dsk18_tech(clock=("G", "SET_B"))])
+
+
+@pytest.mark.parametrize("footed", [True, False])
+def test_domino_or2_still_a_stage(footed):
+    # W&H ch. 9: domino OR2, nmos A and B in parallel below the precharged
+    # node.  Truth table of the pull-down: A + B; with CLK = 1 (precharge
+    # off) and A = B = 0 the node is joined to nothing, so it is dynamic;
+    # the keeper's gate OUT is the node's own inverter output.
+    bottom = "nf" if footed else "VSS"
+    rows = [
+        ("MPC", "pmos", "X", "CLK", "VDD", 1.0, 0.18),
+        ("MK", "pmos", "X", "OUT", "VDD", 0.3, 0.36),
+        ("MA", "nmos", "X", "A", bottom, 1.0, 0.18),
+        ("MB", "nmos", "X", "B", bottom, 1.0, 0.18),
+    ] + inverter("MI", "X", "OUT")
+    if footed:
+        rows.append(("MF", "nmos", "nf", "CLK", "VSS", 2.0, 0.18))
+    for tech in (TECH, NO_CLOCK):
+        r = recognise(rows, tech)
+        (s,) = r.stages
+        assert (s.dynamic_node, s.inputs, s.internal_nodes, s.footed) == ("X", ("A", "B"), (), footed)
+        assert s.keepers == ("MK",) and r.clocks == ["CLK"] and r.findings == []
+
 
 _NETS = ["VDD", "VSS", "CLK", "X", "Y", "n1", "n2", "A", "B"]
 _ROW = st.tuples(st.sampled_from(["nmos", "pmos"]), *[st.sampled_from(_NETS)] * 3)

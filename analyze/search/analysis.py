@@ -71,6 +71,7 @@ __all__ = [
     "find_worst_case",
     "evaluate_pattern",
     "iter_counted_patterns",
+    "worst_patterns",
 ]
 
 
@@ -280,3 +281,50 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
         check_constraints_apply(constraints, recognition.stages, constraints_path)
     results = [analyze_stage(circuit, st, tech, constraints) for st in recognition.stages]
     return recognition, results
+
+
+def worst_patterns(
+    circuit: Circuit,
+    stage: Stage,
+    tech: Tech,
+    constraints: Constraints | None = None,
+    count: int = 3,
+    scan: int = 4096,
+) -> list[WorstCase]:
+    """The worst few counted patterns with distinct shared nodes, worst first.
+
+    Parameters
+    ----------
+    circuit, stage, tech
+    constraints : Constraints or None
+    count : int
+        At most this many.
+    scan : int
+        Counted patterns looked at for the runners-up (in the order of
+        :func:`iter_counted_patterns`); the first is always the exact worst
+        case of :func:`find_worst_case`, whatever ``scan`` is.
+
+    Returns
+    -------
+    list of WorstCase
+        Empty when no allowed pattern counts.
+
+    Notes
+    -----
+    Patterns that share the same nodes end at the same voltage in this
+    model, so only one of them (the first met) stands for its set.  Cost:
+    the exact search plus at most ``scan`` pattern evaluations.
+    """
+    best = find_worst_case(circuit, stage, tech, constraints)
+    if best is None:
+        return []
+    key = lambda wc: tuple(sorted(wc.shared_nodes))  # noqa: E731
+    chosen = {key(best): best}
+    others: dict[tuple, WorstCase] = {}
+    for wc in iter_counted_patterns(circuit, stage, tech, constraints, limit=scan):
+        k = key(wc)
+        if k not in chosen and k not in others:
+            others[k] = wc
+    sign = 1.0 if stage.polarity == "n" else -1.0
+    ranked = sorted(others.values(), key=lambda wc: (sign * wc.v_final, sorted(wc.inputs.items())))
+    return [best, *ranked[: max(0, count - 1)]]

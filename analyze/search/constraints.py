@@ -1,12 +1,16 @@
 """Input constraints: which input patterns can really occur.
 
-A constraints file (TOML) has up to three keys::
+A constraints file (TOML) has up to four keys::
 
     one_hot    = [["S0", "S1", "S2", "S3"]]   # exactly one of each group is 1
     complement = [["A", "A_N"]]               # always opposite values
     fixed      = { EN = 1 }                   # held at a value during evaluation
+    low_in_precharge = ["A", "B"]             # driven by other dynamic stages
 
-Constraints only remove patterns.  :func:`load_constraints` reads and
+Constraints only remove patterns; ``low_in_precharge`` says when inputs
+arrive (low, for a p-type stage high, during precharge; they change only
+during evaluation), which decides the arrival cases that ``--simulate``
+runs.  :func:`load_constraints` reads and
 validates a file into a :class:`Constraints`; :func:`stage_blocks` turns it
 into independent :class:`Block` variables for one stage's inputs, which is
 what the pattern search branches over.
@@ -49,6 +53,9 @@ class Constraints:
         Pairs always at opposite values.
     fixed : tuple of (str, int)
         Nets held at 0 or 1.
+    low_in_precharge : tuple of str
+        Inputs at their precharge level until evaluation starts (driven
+        by other dynamic stages).
     path : str
         The file they came from (for messages).
 
@@ -63,12 +70,14 @@ class Constraints:
     complement: tuple[tuple[str, str], ...] = ()
     fixed: tuple[tuple[str, int], ...] = ()
     path: str = "<constraints>"
+    low_in_precharge: tuple[str, ...] = ()
 
     def places(self) -> list[tuple[str, str]]:
         """Every ``(net, key path)`` the constraints name, in file order."""
         out = [(n, f"one_hot[{i}][{j}]") for i, g in enumerate(self.one_hot) for j, n in enumerate(g)]
         out += [(n, f"complement[{i}][{j}]") for i, p in enumerate(self.complement) for j, n in enumerate(p)]
         out += [(n, f"fixed.{n}") for n, _ in self.fixed]
+        out += [(n, f"low_in_precharge[{i}]") for i, n in enumerate(self.low_in_precharge)]
         return out
 
     def nets(self) -> set[str]:
@@ -137,9 +146,9 @@ def parse_constraints(data: dict, path: str = "<constraints>") -> Constraints:
     ...
     extract.errors.InputError: c.toml: fixed.EN: must be 0 or 1
     """
-    unknown = sorted(set(data) - {"one_hot", "complement", "fixed"})
+    unknown = sorted(set(data) - {"one_hot", "complement", "fixed", "low_in_precharge"})
     if unknown:
-        raise InputError(path, "unknown key (expected one_hot, complement, fixed)", unknown[0])
+        raise InputError(path, "unknown key (expected one_hot, complement, fixed, low_in_precharge)", unknown[0])
     groups: list[tuple] = []
     for key, size in (("one_hot", None), ("complement", 2)):
         value = data.get(key, [])
@@ -152,7 +161,9 @@ def parse_constraints(data: dict, path: str = "<constraints>") -> Constraints:
     for name, val in fixed.items():
         if isinstance(val, bool) or val not in (0, 1):
             raise InputError(path, "must be 0 or 1", f"fixed.{name}")
-    return Constraints(groups[0], groups[1], tuple((n, int(v)) for n, v in fixed.items()), path)
+    low = data.get("low_in_precharge", [])
+    low = _names(low, path, "low_in_precharge") if low != [] else ()
+    return Constraints(groups[0], groups[1], tuple((n, int(v)) for n, v in fixed.items()), path, low)
 
 
 _TOML_LINE = re.compile(r"\(at line (\d+), column \d+\)")

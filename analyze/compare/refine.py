@@ -159,7 +159,7 @@ class Refiner:
     def _leaf(self, col: np.ndarray) -> dict | None:
         a = np.flatnonzero(self.side == 0)
         b = np.flatnonzero(self.side == 1)
-        pair = np.empty(int(col.max()) + 1, dtype=np.int64)
+        pair = np.empty(int(col.max()) + 1 if len(col) else 0, dtype=np.int64)
         pair[col[b]] = b
         mapped = pair[col[a]]
         g0, g1 = self.graphs[0], self.graphs[1]

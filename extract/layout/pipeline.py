@@ -112,10 +112,15 @@ def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:
             circuit = _extract_flat(flat, tech)
         except shapely.errors.GEOSException as exc:
             raise InputError(flat.path, f"geometry cannot be processed ({exc})", f"cell {flat.cell}") from None
-    for name in [n for n, layer in tech.layers.items() if layer.kind in ("diffusion", "poly")]:
-        if not flat.polygons.get(tech.layers[name].gds):
-            circuit.findings.append(
+    # wrong layer numbers show as a missing kind: warn when no diffusion (no
+    # poly) layer has shapes; one empty layer of several (a tap layer in a
+    # logic cell) is normal
+    for kind in ("diffusion", "poly"):
+        names = [n for n, layer in tech.layers.items() if layer.kind == kind]
+        if not any(flat.polygons.get(tech.layers[n].gds) for n in names):
+            circuit.findings.extend(
                 Finding(f"tech layer {name} {list(tech.layers[name].gds)} has no shapes in cell {flat.cell}")
+                for name in names
             )
     return circuit
 

@@ -164,9 +164,35 @@ def _element(card: Card, path: str, sub: Subckt, names: dict[str, int]) -> None:
         )
     names[kw] = card.line
     pos, params = split_fields(card, path)
+    if letter == "x":
+        pos = _cdl_instance(pos)
     if letter == "x" and len(pos) < 2:
         raise InputError(path, f"{pos[0]} names no subcircuit", card.place)
     sub.elements.append((card, pos, params))
+
+
+def _cdl_instance(pos: list[str]) -> list[str]:
+    """The fields of an X line without CDL's ``/`` before the subcircuit name.
+
+    CDL writes an instance as ``XI1 a b / CELL`` (or ``XI1 a b /CELL``); the
+    slash is a separator, not a node.  A node named ``/`` means nothing in
+    SPICE either, so the rule holds in every dialect.  (A ``/`` inside a
+    name, ``X1/A``, is part of the name.)
+
+    Examples
+    --------
+    >>> _cdl_instance(["XI1", "a", "b", "/", "INV"])
+    ['XI1', 'a', 'b', 'INV']
+    >>> _cdl_instance(["XI1", "a", "b", "/INV"])
+    ['XI1', 'a', 'b', 'INV']
+    >>> _cdl_instance(["X1", "u/a", "INV"])
+    ['X1', 'u/a', 'INV']
+    """
+    if len(pos) >= 3 and pos[-2] == "/":
+        return pos[:-2] + pos[-1:]
+    if len(pos) >= 2 and pos[-1].startswith("/") and len(pos[-1]) > 1:
+        return pos[:-1] + [pos[-1][1:]]
+    return pos
 
 
 def _model(card: Card, path: str, lib: Library) -> None:

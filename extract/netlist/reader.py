@@ -25,7 +25,8 @@ The accepted netlist
 - ``R``: ``Rname node node ...`` joins the two nodes into one net.
 - ``X``: ``Xname node... subckt [name=value...] [M=k]``, a subcircuit of
   the file (or of a file it includes), flattened with hierarchical names
-  ``X1/MN3``, ``X1/n1``.
+  ``X1/MN3``, ``X1/n1``.  CDL's ``Xname node... / subckt`` (a ``/`` field
+  before the name, or ``/subckt``) is the same line.
 - ``.model NAME nmos|pmos ...`` gives a model name a type (its parameters
   are not used: the tech file has them).  ``.global`` nets are not
   prefixed.  Node ``0`` is SPICE's ground: it becomes the tech file's

@@ -168,3 +168,14 @@ def test_wrong_layer_numbers_warn(tmp_path):
     rc, so, se = run("check", GDS, "--tech", str(tech), "--cell", "DYN_NAND3")
     assert rc == 0 and "no dynamic stage" in so
     assert "tech layer active [11, 0] has no shapes" in se
+
+
+def test_one_empty_layer_of_two_diffusion_layers_is_no_warning(tmp_path):
+    # hand: a second diffusion layer (a tap layer, as the sky130 tech file
+    # has) with no shapes in the cell is normal; only a kind with no shapes
+    # at all points at wrong layer numbers
+    tech = tmp_path / "t.toml"
+    tech.write_text(open(TECH).read().replace(
+        "[layers.poly]", '[layers.tap]\ngds  = [12, 0]\nkind = "diffusion"\n\n[layers.poly]'))
+    rc, so, se = run("check", GDS, "--tech", str(tech), "--cell", "DYN_NAND3")
+    assert rc == 0 and "has no shapes" not in se

@@ -301,3 +301,21 @@ def test_every_sample_cell_matches_itself_through_spice():
         used = {n for d in lay.devices for n in (d.drain, d.gate, d.source)}
         assert {k: v for k, v in m.net_map.items() if k in used} == {n: names[n] for n in used}, cell
         assert m.device_map == {d.name: d.name for d in lay.devices}, cell
+
+
+def test_two_cells_without_devices_match():
+    # hand: a fill or tap cell has no transistor on either side, so the
+    # pairing is empty; it used to crash on the empty colouring (found on
+    # the sky130 fill cells, tests/pdk/)
+    empty = Circuit("FILL", {"VDD": Net("VDD", labelled=True), "VSS": Net("VSS", labelled=True)}, [])
+    m = match_circuits(empty, copy.deepcopy(empty))
+    assert m.device_map == {} and m.groups == []
+    assert m.net_map == {"VDD": "VDD", "VSS": "VSS"}  # labelled nets paired by name
+
+
+def test_devices_against_an_empty_layout_is_a_mismatch():
+    # hand: one schematic device and no layout device cannot match
+    s = Circuit("C", {"A": Net("A", labelled=True), "VSS": Net("VSS", labelled=True)},
+                [Device("M1", "nmos", "A", "A", "VSS", 1.0, 0.18)], source="c.sp")
+    with pytest.raises(InputError, match="has no layout counterpart"):
+        match_circuits(s, Circuit("C", {}, []))

@@ -633,3 +633,16 @@ def test_sample_dyn_nand3_schematic():
     long = read_schematic(SAMPLES / "DYN_NAND3_LONG.sp", tech)
     assert long.nets["X"].cap.as_dict() == pytest.approx(c.nets["X"].cap.as_dict())
     assert long.device("MA").w_um == 1.0 and long.device("MKEEP").l_um == 0.36
+
+
+@pytest.mark.parametrize("sep", [" / INV", " /INV"])
+def test_cdl_slash_before_the_subcircuit_name(sep):
+    # CDL syntax (the SkyWater sky130_fd_sc_hd macro_sparecell.cdl writes
+    # `XI2 LO LO VGND VNB VPB VPWR nd2right / sky130_fd_sc_hd__nand2_2`):
+    # the slash separates the nodes from the subcircuit name; it is no node
+    c = parse(INV + f".subckt TOP A Y VDD VSS\nXI1 A Y VDD VSS{sep}\n.ends\n")
+    assert [d.name for d in c.devices] == ["XI1/MN", "XI1/MP"]
+    assert c.device("XI1/MN").gate == "A" and c.device("XI1/MN").drain == "Y"
+    # a slash inside a node name stays part of the name (SPICE syntax)
+    c = parse(INV + ".subckt TOP A Y VDD VSS\nX1 A u/y VDD VSS INV\n.ends\n", subckt="TOP")
+    assert "X1/MN" in [d.name for d in c.devices] and "u/y" in c.nets

@@ -27,8 +27,6 @@ pytestmark = pytest.mark.pdk
 
 ROOT = Path(__file__).resolve().parents[2]
 TECH = str(Path(__file__).with_name("sky130_hd.toml"))
-#: Static flip-flops still taken for dynamic stages (see above).
-FLIPFLOPS_PENDING = {"dfbbn_1", "dfbbn_2", "dfbbp_1", "sdfbbn_1", "sdfbbn_2", "sdfbbp_1"}
 
 
 def dynshare(*args, timeout=600):
@@ -117,14 +115,12 @@ def _sparecell_transistors(pdk) -> int:
     return per["conb_1"] + 2 * (per["nand2_2"] + per["nor2_2"] + per["inv_2"])
 
 
-def test_no_cell_has_a_dynamic_stage(library_run, pdk, hd_cell, request):
-    # source: sky130_fd_sc_hd is a static library (see the module text)
+def test_no_cell_has_a_dynamic_stage(library_run, pdk, hd_cell):
+    # source: sky130_fd_sc_hd is a static library (see the module text); the
+    # static flip-flops with set and reset (dfbbn_1, dfbbn_2, dfbbp_1,
+    # sdfbbn_1, sdfbbn_2, sdfbbp_1) were once taken for dynamic stages
     suffix, rc, so, se, report = library_run
     name, stem = hd_cell
-    if name in FLIPFLOPS_PENDING:
-        request.applymarker(pytest.mark.xfail(
-            strict=False, reason="static flip-flop with set and reset taken for dynamic stages; "
-                                 "the recognition fix is in progress"))
     record = next(r for r in report["cells"] if r["cell"] == stem.name)
     assert record["status"] == "no stage", (record["status"], [s["dynamic_node"] for s in record["stages"]])
 

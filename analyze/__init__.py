@@ -5,6 +5,9 @@ Subpackages, from the bottom up; each may import the ones before it and
 
 1. :mod:`analyze.stages` -- recognition of dynamic stages (precharge,
    evaluation network, footer, keeper, receiver) and clock inference;
+   beside it, :mod:`analyze.simulator` -- ngspice runs on a foundry model
+   library pruned to the devices needed (the two import only
+   :mod:`extract`, not each other);
 2. :mod:`analyze.physics` -- node charge, pass limits, receiver threshold,
    the final-voltage solver;
 3. :mod:`analyze.search` -- input patterns, constraints, the exact worst

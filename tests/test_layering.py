@@ -27,12 +27,13 @@ RANKS = {
     "extract.netlist": 1,
     "extract.writers": 1,
     "analyze.stages": 2,
-    "analyze.physics": 3,
-    "analyze.search": 4,
-    "analyze.compare": 5,
-    "analyze.report": 6,
-    "analyze.cli": 7,
-    "analyze": 8,
+    "analyze.simulator": 2,
+    "analyze.physics": 4,
+    "analyze.search": 5,
+    "analyze.compare": 6,
+    "analyze.report": 7,
+    "analyze.cli": 8,
+    "analyze": 9,
 }
 
 

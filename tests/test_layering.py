@@ -30,10 +30,11 @@ RANKS = {
     "analyze.simulator": 2,
     "analyze.physics": 4,
     "analyze.search": 5,
-    "analyze.compare": 6,
-    "analyze.report": 7,
-    "analyze.cli": 8,
-    "analyze": 9,
+    "analyze.simulate": 6,
+    "analyze.compare": 7,
+    "analyze.report": 8,
+    "analyze.cli": 9,
+    "analyze": 10,
 }
 
 

@@ -65,8 +65,16 @@ def check_cell(args) -> int:
     from analyze.cli.inputs import open_cells
 
     tech, constraints = load_run_inputs(args)
+    if getattr(args, "simulate", False) and tech.models is None:
+        from extract.errors import InputError
+
+        raise InputError(args.tech, "--simulate needs a [models] table (the foundry model library)", "models")
     circuit = open_cells(args.layout, tech).circuit(args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
+    if getattr(args, "simulate", False):
+        from analyze.simulate.run import simulate_stage
+
+        results = [r.with_simulation(simulate_stage(circuit, r, tech, constraints, args.corner)) for r in results]
     report = check_report(circuit, tech, recognition, results)
     text = check_text(circuit, tech, recognition, results)
     failed = sum(r.status == "fail" for r in results)

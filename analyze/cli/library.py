@@ -154,6 +154,8 @@ def run_library(args) -> int:
         raise InputError(args.html, "--html is written per cell; it cannot be combined with --all-cells", "--html")
     if args.cell:
         raise InputError(args.layout, "--cell and --all-cells exclude each other", "--cell")
+    if getattr(args, "simulate", False):
+        raise InputError(args.layout, "--simulate runs on one cell at a time; name it with --cell", "--simulate")
     if args.jobs is not None and args.jobs < 1:
         raise InputError(args.layout, f"--jobs must be at least 1, got {args.jobs}", "--jobs")
     check_outputs({"--json": args.json}, [args.layout, args.tech, args.constraints])

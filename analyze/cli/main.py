@@ -25,7 +25,8 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _layout_args(p):
-    p.add_argument("layout", metavar="LAYOUT", help="GDSII (.gds) or OASIS (.oas) file")
+    p.add_argument("layout", metavar="INPUT",
+                   help="GDSII (.gds) or OASIS (.oas) layout, or a SPICE/CDL netlist (told apart by content)")
     p.add_argument("--tech", required=True, metavar="TECH", help="tech file (TOML)")
     p.add_argument("--cell", metavar="NAME", help="cell to read (default: the single top cell)")
 
@@ -55,6 +56,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
     p.add_argument("--html", metavar="OUT", help="write an HTML report")
     p.add_argument("--all-cells", action="store_true", help="check every cell of the library LAYOUT")
+    p.add_argument("--simulate", action="store_true",
+                   help="also simulate the worst cases with ngspice and the tech file's [models]")
+    p.add_argument("--corner", action="append", metavar="C",
+                   help="with --simulate: this corner of [models] corners (repeatable; default all)")
     p.add_argument("--jobs", type=int, default=1, metavar="N", help="with --all-cells: cells in N parallel processes")
 
     p = sub.add_parser("compare", help="pre-layout (schematic) against post-layout (layout)")

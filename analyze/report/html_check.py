@@ -21,7 +21,7 @@ from analyze.report.html_compare import compare_html
 from analyze.report.html_page import (fix_action, flags_table, fmt_loc, fmt_v, layout_figure, page, pattern_text, props_table,
                                stage_kind, status_html, table)
 from analyze.report.svg_layout import MAX_SHAPES, Mark
-from analyze.report.svg_plots import pattern_plot_svg
+from analyze.report.svg_plots import pattern_plot_svg, waveform_svg
 
 __all__ = ["check_html", "compare_html", "MAX_PATTERNS", "MAX_DETAILED", "MAX_SUMMARY"]
 
@@ -164,6 +164,8 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
     out.append(f'<table class="props verdict"><tbody><tr><th>margin</th><td class="num">{r.margin_v:+.3f} V</td>'
                f"{status_html(r.status)}</tr></tbody></table>")
     out.append(flags_table(r))
+    if r.simulation:
+        out.append(_simulation(r, tech))
     if r.counted_patterns:
         pts, caption = _pattern_points(circuit, st, tech, r, constraints, max_patterns)
         svg = pattern_plot_svg(pts, threshold_v=r.threshold_v, guard_v=tech.guard, vdd=tech.vdd,
@@ -172,6 +174,29 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
                    "Solid bars pass, hatched bars fail.</figcaption></figure>")
     out.append("</section>")
     return "\n".join(out)
+
+
+def _simulation(r, tech) -> str:
+    """Analysis and simulation side by side, and the worst case's waveform."""
+    word = "lowest V(X)" if r.stage.polarity == "n" else "highest V(X)"
+    rows = [[str(s.corner or "–"), s.case, pattern_text(s.inputs), fmt_v(s.v_min), f"{s.t_min_ns:.3f} ns",
+             fmt_v(s.threshold_v), f"{s.margin_v:+.3f} V", s.status.upper(),
+             "–" if s.v_min_without_keeper is None else fmt_v(s.v_min_without_keeper)] for s in r.simulation]
+    worst = min(r.simulation, key=lambda s: s.margin_v)
+    head = (f'<h3>Simulation with the foundry models</h3><p class="note">ngspice, every input-arrival case the '
+            f"constraints allow, keeper in (and without its help in the last column). The analysis said "
+            f"{r.analysis_status.upper()} (v_final {fmt_v(r.worst_case.v_final) if r.worst_case else '–'}, "
+            f"threshold {fmt_v(r.threshold_v)}); the simulation says {r.status.upper()}.</p>")
+    svg = ""
+    if worst.waveform is not None:
+        t, v = worst.waveform
+        svg = waveform_svg(t, v, threshold_v=worst.threshold_v, vdd=tech.vdd, window_ns=tech.evaluation_ns,
+                           caption=f"V(X), corner {worst.corner}, case {worst.case}, {pattern_text(worst.inputs)}")
+        svg = (f"<figure>{svg}<figcaption>Dynamic node of the simulated case with the lowest margin (corner "
+               f"{html.escape(str(worst.corner))}, {html.escape(worst.case)} inputs, "
+               f"{html.escape(pattern_text(worst.inputs))}).</figcaption></figure>")
+    return head + table(["corner", "case", "pattern", word, "at", "threshold", "margin", "status",
+                         "without keeper"], rows, cls="simulation") + svg
 
 
 def _couplings(circuit) -> str:

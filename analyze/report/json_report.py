@@ -160,7 +160,30 @@ def stage_json(result, circuit: Circuit) -> dict:
         "worst_case": worst_case_json(result.worst_case),
         "flags": flags_json(result.flags),
         "flag_note": result.flag_note,
+        **({"analysis_status": result.analysis_status, "simulation": simulation_json(result.simulation)}
+           if result.simulation else {}),
     }
+
+
+def simulation_json(sims) -> list[dict]:
+    """``simulation[]`` of a stage: each simulated pattern, arrival case and corner."""
+    opt = lambda v: None if v is None else rounded(v)  # noqa: E731
+    return [
+        {
+            "corner": s.corner,
+            "case": s.case,
+            "inputs": {k: int(v) for k, v in sorted(s.inputs.items())},
+            "v_min": rounded(s.v_min),
+            "t_min_ns": rounded(s.t_min_ns),
+            "receiver_peak_v": opt(s.receiver_peak_v),
+            "threshold_v": rounded(s.threshold_v),
+            "margin_v": rounded(s.margin_v),
+            "status": s.status,
+            "v_min_without_keeper": opt(s.v_min_without_keeper),
+            "margin_without_keeper_v": opt(s.margin_without_keeper_v),
+        }
+        for s in sims
+    ]
 
 
 def dumps(report: dict) -> str:

@@ -15,7 +15,7 @@ from __future__ import annotations
 import html
 import math
 
-__all__ = ["pattern_plot_svg", "paired_bars_svg", "nice_ticks"]
+__all__ = ["pattern_plot_svg", "paired_bars_svg", "waveform_svg", "nice_ticks"]
 
 _PASS = "#4f98cc"
 _FAIL = "#1d1d1d"
@@ -227,3 +227,68 @@ def paired_bars_svg(rows, *, unit: str, axis_max: float | None = None, pattern_i
     out.append(f'<line x1="{left}" x2="{left}" y1="{top - 4}" y2="{base}" stroke="#000000"/>')
     out.append("</svg>")
     return "\n".join(out)
+
+
+def waveform_svg(t_ns, v, *, threshold_v: float, vdd: float, window_ns: float, caption: str = "") -> str:
+    """A voltage waveform against time, with the threshold and the
+    evaluation window marked.
+
+    Parameters
+    ----------
+    t_ns, v : sequence of float
+        Time (ns after evaluation starts) and voltage (V), same length.
+    threshold_v : float
+        Drawn as a dashed line.
+    vdd : float
+        Top of the voltage axis.
+    window_ns : float
+        The evaluation window ``[0, window_ns]`` is shaded.
+    caption : str
+        Text of the ``<title>``.
+
+    Returns
+    -------
+    str
+        An ``<svg>`` element; empty string when there are fewer than two points.
+
+    Examples
+    --------
+    >>> svg = waveform_svg([0, 0.5, 1.0], [1.8, 1.2, 1.1], threshold_v=0.9, vdd=1.8, window_ns=1.0)
+    >>> svg.startswith("<svg") and "polyline" in svg
+    True
+    >>> waveform_svg([0], [1.8], threshold_v=0.9, vdd=1.8, window_ns=1.0)
+    ''
+    """
+    t_ns, v = list(t_ns), list(v)
+    if len(t_ns) < 2:
+        return ""
+    w, h, left, bottom, top, right = 560, 220, 48, 30, 10, 12
+    t0, t1 = min(t_ns), max(t_ns)
+    span = (t1 - t0) or 1.0
+    vmax = max(vdd, max(v)) * 1.02
+    vmin = min(0.0, min(v))
+
+    def x(t):
+        return left + (t - t0) / span * (w - left - right)
+
+    def y(u):
+        return top + (vmax - u) / (vmax - vmin) * (h - top - bottom)
+
+    step = max(1, len(t_ns) // 800)
+    pts = " ".join(f"{x(a):.1f},{y(b):.1f}" for a, b in list(zip(t_ns, v))[::step])
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="waveform" viewBox="0 0 {w} {h}" width="{w}" '
+           f'height="{h}" role="img"><title>{html.escape(caption)}</title>',
+           f'<rect x="{x(max(0.0, t0)):.1f}" y="{top}" width="{x(min(window_ns, t1)) - x(max(0.0, t0)):.1f}" '
+           f'height="{h - top - bottom}" fill="#eef3f7"/>']
+    for tick in nice_ticks(vmax, 4):
+        if tick <= vmax:
+            out.append(f'<line x1="{left}" x2="{w - right}" y1="{y(tick):.1f}" y2="{y(tick):.1f}" stroke="#ddd"/>'
+                       f'<text x="{left - 4}" y="{y(tick) + 4:.1f}" text-anchor="end" font-size="10">'
+                       f"{_t(tick)}</text>")
+    out.append(f'<line x1="{left}" x2="{w - right}" y1="{y(threshold_v):.1f}" y2="{y(threshold_v):.1f}" '
+               f'stroke="#1d1d1d" stroke-dasharray="5 3"><title>receiver threshold {threshold_v:.3f} V</title></line>')
+    out.append(f'<polyline fill="none" stroke="#1f3b52" stroke-width="1.5" points="{pts}"/>')
+    out.append(f'<text x="{w - right}" y="{h - 8}" text-anchor="end" font-size="10">ns after evaluation starts; '
+               f"V(dynamic node), dashed: receiver threshold, shaded: evaluation window</text>")
+    out.append("</svg>")
+    return "".join(out)

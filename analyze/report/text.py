@@ -104,7 +104,28 @@ def stage_block(result, circuit: Circuit, tech) -> str:
         out.append(f"  fix: add {action} devices on")
         for f in result.flags:
             between = f" between {' and '.join(f.between)}" if f.between else ""
-            out.append(f"    {f.node:<8} {fmt_loc(f.location_um)}{between}  -> worst case {f.v_final_after:.3f} V")
+            where = "" if f.location_um is None else f" {fmt_loc(f.location_um)}"
+            out.append(f"    {f.node:<8}{where}{between}  -> worst case {f.v_final_after:.3f} V")
     elif result.flag_note:
         out.append(f"  fix: {result.flag_note}")
+    if result.simulation:
+        out += simulation_lines(result)
     return "\n".join(out) + "\n"
+
+
+def simulation_lines(result) -> list[str]:
+    """The simulated cases of a stage as a small table, worst margin first
+    per corner, with the analysis verdict beside the simulated one."""
+    sims = result.simulation
+    word = "v_min" if result.stage.polarity == "n" else "v_max"
+    out = [f"  simulation    ngspice with the foundry models; analysis said {result.analysis_status.upper()}, "
+           f"simulation says {result.status.upper()}",
+           f"    {'corner':<7} {'case':<8} {'pattern':<22} {word:>7} {'at ns':>6} {'thresh':>7} {'margin':>7}"
+           f"  {'':<4}  {'no keeper':>9}"]
+    for s in sims:
+        pattern = _pattern(s.inputs)
+        pattern = pattern if len(pattern) <= 22 else pattern[:19] + "..."
+        nk = "" if s.v_min_without_keeper is None else f"{s.v_min_without_keeper:.3f} V"
+        out.append(f"    {str(s.corner or '-'):<7} {s.case:<8} {pattern:<22} {s.v_min:7.3f} {s.t_min_ns:6.3f} "
+                   f"{s.threshold_v:7.3f} {s.margin_v:+7.3f}  {s.status.upper():<4}  {nk:>9}")
+    return out

@@ -96,6 +96,11 @@ class StageResult:
     flag_note : str or None
     counted_patterns : int
         Number of counted patterns the constraints allow.
+    simulation : list
+        Simulated cases (:class:`analyze.simulate.run.SimulatedCase`) when
+        ``--simulate`` ran; then ``status`` is the simulated verdict and
+        ``analysis_status`` the analysis' own.
+    analysis_status : str or None
     """
 
     stage: Stage
@@ -106,6 +111,18 @@ class StageResult:
     flags: list[Flag] = field(default_factory=list)
     flag_note: str | None = None
     counted_patterns: int = 0
+    simulation: list = field(default_factory=list)
+    analysis_status: str | None = None
+
+    def with_simulation(self, sims: list) -> "StageResult":
+        """This result with ``sims`` attached and the simulated verdict:
+        fail when any simulated case fails."""
+        from dataclasses import replace
+
+        if not sims:
+            return self
+        status = "fail" if any(s.status == "fail" for s in sims) else "pass"
+        return replace(self, simulation=list(sims), analysis_status=self.status, status=status)
 
 
 def _prepared(circuit, stage, tech, constraints, precharged):

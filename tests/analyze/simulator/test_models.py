@@ -9,7 +9,7 @@ import time
 
 import pytest
 from ngspice_run import require_ngspice
-from sky130_src import SKY130_LIBRARY
+from sky130_src import SKY130_LIBRARY, private_cache, sky130_root  # noqa: F401 (fixtures)
 
 from analyze.simulator import models as models_mod
 from analyze.simulator.instances import transistor_line
@@ -17,6 +17,8 @@ from analyze.simulator.models import parses_done, prune_models
 from analyze.simulator.ngspice import deck, run_deck
 from extract.errors import InputError
 from extract.tech import Models
+
+pytestmark = pytest.mark.usefixtures("private_cache")
 
 NFET, PFET = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
 

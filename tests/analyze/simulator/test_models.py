@@ -9,7 +9,7 @@ import time
 
 import pytest
 from ngspice_run import require_ngspice
-from sky130_src import SKY130_LIBRARY
+from sky130_src import SKY130_LIBRARY, private_cache, sky130_root  # noqa: F401 (fixtures)
 
 from analyze.simulator import models as models_mod
 from analyze.simulator.instances import transistor_line

@@ -8,6 +8,8 @@ Subpackages, from the bottom up; each may import the ones before it and
    beside it, :mod:`analyze.simulator` -- ngspice runs on a foundry model
    library pruned to the devices needed (the two import only
    :mod:`extract`, not each other);
+   then :mod:`analyze.characterize` -- tech-file device parameters fitted
+   to foundry models (may import the simulator and the stages);
 2. :mod:`analyze.physics` -- node charge, pass limits, receiver threshold,
    the final-voltage solver;
 3. :mod:`analyze.search` -- input patterns, constraints, the exact worst

@@ -67,6 +67,8 @@ class MosParams:
 
     The names are those of the SPICE level-1 MOSFET model; see the tech-file
     reference in the README for each unit.  ``vt0`` is negative for pmos.
+    ``mjswg``/``pbswg`` grade the gate-edge sidewall (BSIM's names); None
+    means the field sidewall's ``mjsw``/``pbsw``.
     """
 
     type: str
@@ -84,6 +86,14 @@ class MosParams:
     pb: float
     pbsw: float
     models: tuple[str, ...] = ()
+    mjswg: float | None = None
+    pbswg: float | None = None
+
+    def __post_init__(self):
+        if self.mjswg is None:
+            object.__setattr__(self, "mjswg", self.mjsw)
+        if self.pbswg is None:
+            object.__setattr__(self, "pbswg", self.pbsw)
 
 
 @dataclass(frozen=True)
@@ -151,12 +161,16 @@ class Models:
     nmos, pmos : str
         Device (subcircuit or model) name an extracted nmos/pmos is written
         as in a simulation deck.
+    length_um : float or None
+        ``[models] length``: the channel length (µm) at which
+        ``characterize`` fits the device parameters; None: its default.
     """
 
     library: str
     corners: tuple[str, ...] = ()
     nmos: str = ""
     pmos: str = ""
+    length_um: float | None = None
 
 
 @dataclass(frozen=True)

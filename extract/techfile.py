@@ -33,11 +33,11 @@ _LAYER_KEYS = ("gds", "kind", "area", "fringe", "labels", "joins")
 _WIRE_KINDS = ("poly", "metal")  # kinds that take `area` and `fringe`
 _MOS_REQUIRED = ("vt0", "gamma", "phi", "kp", "cox", "cj", "cjsw", "mj", "mjsw", "pb")
 _MOS_KEYS = ("models", "vt0", "gamma", "phi", "kp", "cox", "cgo",
-             "cj", "cjsw", "cjswg", "mj", "mjsw", "pb", "pbsw")
+             "cj", "cjsw", "cjswg", "mj", "mjsw", "pb", "pbsw", "mjswg", "pbswg")
 #: Range rule of each MOS parameter (vt0 depends on the type, see _mos_table).
 _MOS_RULES = {"gamma": ">=0", "phi": ">0", "kp": ">0", "cox": ">0", "cgo": ">=0",
               "cj": ">=0", "cjsw": ">=0", "cjswg": ">=0", "mj": "[0,1)",
-              "mjsw": "[0,1)", "pb": ">0", "pbsw": ">0"}
+              "mjsw": "[0,1)", "pb": ">0", "pbsw": ">0", "mjswg": "[0,1)", "pbswg": ">0"}
 _RULES = {
     ">0": (lambda v: v > 0, "must be > 0"),
     ">=0": (lambda v: v >= 0, "must be >= 0"),
@@ -48,13 +48,17 @@ _BARE_KEY = re.compile(r"[A-Za-z0-9_-]+\Z")
 _TOML_WHERE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*\Z")
 
 
-def load_tech(path) -> Tech:
+def load_tech(path, mos_optional: bool = False) -> Tech:
     """Read the tech file at ``path``.
 
     Parameters
     ----------
     path : str or os.PathLike
         The TOML file.  It is only read.
+    mos_optional : bool
+        Let a file with ``[models]`` leave out ``[mos.nmos]``/``[mos.pmos]``
+        (the input of ``characterize``); ``Tech.mos`` then holds the tables
+        that are there.
 
     Returns
     -------
@@ -90,10 +94,10 @@ def load_tech(path) -> Tech:
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
         raise InputError(name, "not UTF-8 text (TOML must be UTF-8)", place=f"line {line}") from None
-    return parse_tech(text, name)
+    return parse_tech(text, name, mos_optional)
 
 
-def parse_tech(text: str, path: str) -> Tech:
+def parse_tech(text: str, path: str, mos_optional: bool = False) -> Tech:
     """Parse and validate the text of a tech file.
 
     Parameters
@@ -102,12 +106,15 @@ def parse_tech(text: str, path: str) -> Tech:
         TOML source.
     path : str
         Name of the file, used in messages and kept as ``Tech.path``.
+    mos_optional : bool
+        As for :func:`load_tech`.
 
     Returns
     -------
     Tech
         Layers in file order; omitted optional keys take their defaults
-        (``cjswg`` = ``cjsw``, ``pbsw`` = ``pb``, ``cgo`` = 0, ``models`` =
+        (``cjswg`` = ``cjsw``, ``pbsw`` = ``pb``, ``mjswg`` = ``mjsw``,
+        ``pbswg`` = ``pbsw``, ``cgo`` = 0, ``models`` =
         (), ``nets.clock`` = (), ``check.guard`` = 0, ``[prelayout]`` those
         of :class:`extract.tech.Prelayout`).
 
@@ -157,11 +164,12 @@ def parse_tech(text: str, path: str) -> Tech:
                 place = f"line {where.group(1)}"
                 message += f" (column {where.group(2)})"
         reader.fail(place, f"invalid TOML: {message}")
-    reader.keys(data, "", _TOP_KEYS, ("process", "nets", "mos"))
+    optional = mos_optional and "models" in data
+    reader.keys(data, "", _TOP_KEYS, ("process", "nets") if optional else ("process", "nets", "mos"))
     name, vdd = _process(reader, data["process"])
     nets = _nets(reader, data["nets"])
     layers = _layers(reader, data["layers"]) if "layers" in data else {}
-    mos = _mos(reader, data["mos"])
+    mos = _mos(reader, data.get("mos", {}), optional)
     guard, evaluation_ns = _check(reader, data.get("check"), vdd)
     prelayout = _prelayout(reader, data.get("prelayout"))
     scale, ignore = _netlist(reader, data.get("netlist"))
@@ -361,11 +369,11 @@ def _one_layer(r: _Reader, name: str, spec, path: str) -> Layer:
     )
 
 
-def _mos(r: _Reader, table) -> dict[str, MosParams]:
-    r.keys(table, "mos", ("nmos", "pmos"), ("nmos", "pmos"))
-    mos = {kind: _mos_table(r, kind, table[kind]) for kind in ("nmos", "pmos")}
-    nmos_models = {m.upper() for m in mos["nmos"].models}
-    for i, model in enumerate(mos["pmos"].models):
+def _mos(r: _Reader, table, optional: bool = False) -> dict[str, MosParams]:
+    r.keys(table, "mos", ("nmos", "pmos"), () if optional else ("nmos", "pmos"))
+    mos = {kind: _mos_table(r, kind, table[kind]) for kind in ("nmos", "pmos") if kind in table}
+    nmos_models = {m.upper() for m in mos["nmos"].models} if "nmos" in mos else set()
+    for i, model in enumerate(mos["pmos"].models if "pmos" in mos else ()):
         if model.upper() in nmos_models:
             r.fail(f"mos.pmos.models[{i}]", f"model {model!r} is also listed for nmos "
                                             "(names compare without case)")
@@ -379,6 +387,9 @@ def _mos_table(r: _Reader, kind: str, table) -> MosParams:
     values = {key: r.number(table, path, key, rules[key]) for key in _MOS_KEYS[1:]}
     defaults = {"cgo": 0.0, "cjswg": values["cjsw"], "pbsw": values["pb"]}
     for key, default in defaults.items():
+        if values[key] is None:
+            values[key] = default
+    for key, default in (("mjswg", values["mjsw"]), ("pbswg", values["pbsw"])):
         if values[key] is None:
             values[key] = default
     return MosParams(type=kind, models=r.strings(table, path, "models"), **values)
@@ -414,7 +425,10 @@ def _models(r: _Reader, table, path: str) -> Models | None:
     """``[models]``: the library path is made absolute against the tech file."""
     if table is None:
         return None
-    r.keys(table, "models", ("library", "corners", "nmos", "pmos"), ("library", "nmos", "pmos"))
+    r.keys(table, "models", ("library", "corners", "nmos", "pmos", "length"), ("library", "nmos", "pmos"))
+    length = r.number(table, "models", "length", ">0")
+    if length is not None and length > 1000:
+        r.fail("models.length", f"must be at most 1000 µm, got {table['length']}")
     library = r.string(table["library"], "models.library")
     if not os.path.isabs(library) and not path.startswith("<"):
         library = os.path.join(os.path.dirname(os.path.abspath(path)), library)
@@ -429,7 +443,7 @@ def _models(r: _Reader, table, path: str) -> Models | None:
         devices[kind] = r.string(table[kind], f"models.{kind}")
         if not re.fullmatch(r"[A-Za-z_][\w.$]*", devices[kind]):
             r.fail(f"models.{kind}", f"not a SPICE device name: {devices[kind]!r}")
-    return Models(library=library, corners=corners, **devices)
+    return Models(library=library, corners=corners, length_um=length, **devices)
 
 
 def _prelayout(r: _Reader, table) -> Prelayout:

@@ -28,6 +28,7 @@ RANKS = {
     "extract.writers": 1,
     "analyze.stages": 2,
     "analyze.simulator": 2,
+    "analyze.characterize": 3,
     "analyze.physics": 4,
     "analyze.search": 5,
     "analyze.simulate": 6,

@@ -13,7 +13,7 @@ from analyze.cli.output import check_outputs, emit
 from analyze.report.json_report import dumps, extract_report
 from extract.techfile import load_tech
 
-__all__ = ["run_extract", "run_check", "run_compare", "run_demo"]
+__all__ = ["run_extract", "run_check", "run_compare", "run_characterize", "run_demo"]
 
 
 def extract_summary(circuit, top: int = 5) -> str:
@@ -80,6 +80,12 @@ def run_compare(args) -> int:
     from analyze.cli.compare import compare_cell
 
     return compare_cell(args)
+
+
+def run_characterize(args) -> int:
+    from analyze.cli.characterize import run
+
+    return run(args)
 
 
 def run_demo(args) -> int:

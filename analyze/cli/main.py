@@ -1,7 +1,7 @@
 """The ``dynshare`` command line.
 
-Sub-commands: ``extract``, ``check``, ``compare``, ``demo`` (see the
-README).  Exit status 0 when every stage passes, 1 when at least one stage
+Sub-commands: ``extract``, ``check``, ``compare``, ``characterize``,
+``demo`` (see the README).  Exit status 0 when every stage passes, 1 when at least one stage
 fails its check, 2 for bad input or usage — then exactly one line
 ``error: ...`` goes to standard error, never a traceback.
 """
@@ -69,6 +69,24 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
     p.add_argument("--html", metavar="OUT", help="write an HTML report")
 
+    p = sub.add_parser(
+        "characterize", help="fit a tech file's [mos.*] tables to the foundry models in its [models] table",
+        description="Fit vt0, gamma, phi, kp, cox, cgo and the junction parameters of [mos.nmos] and "
+        "[mos.pmos] to the SPICE models named in the tech file's [models] table, with ngspice, and write "
+        "a complete tech file per corner. With one corner the file is OUT; with several, the corner goes "
+        "before OUT's suffix (out.toml -> out.tt.toml, out.ss.toml). Results are cached in "
+        "$DYNSHARE_CACHE (default ~/.cache/dynshare).")
+    p.add_argument("--tech", required=True, metavar="TECH", help="tech file with a [models] table")
+    p.add_argument("--out", required=True, metavar="OUT", help="the fitted tech file (one per corner, see above)")
+    p.add_argument("--corner", action="append", metavar="C",
+                   help="library section to fit (repeat for several; default: [models] corners, else the "
+                        "whole library)")
+    p.add_argument("--length", type=float, metavar="UM",
+                   help="channel length in um (default: [models] length, else the shortest binned length)")
+    p.add_argument("--width", type=float, metavar="UM", help="width of the threshold device in um (default 1)")
+    p.add_argument("--temp", type=float, default=27.0, metavar="C", help="temperature in C (default 27)")
+    p.add_argument("--json", metavar="OUT", help="write the fit results as JSON ('-' for stdout)")
+
     p = sub.add_parser("demo", help="the whole job on the bundled sample layouts")
     p.add_argument("--out", metavar="DIR", default="dynshare-demo", help="output folder (default ./dynshare-demo)")
     return parser
@@ -95,7 +113,7 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:
         return 0
     except Exception as exc:  # a bug: still one line, never a traceback
-        name = getattr(args, "layout", None) or getattr(args, "command", "dynshare")
+        name = getattr(args, "layout", None) or getattr(args, "tech", None) or getattr(args, "command", "dynshare")
         sys.stderr.write(f"error: {name}: internal error ({type(exc).__name__}: {exc}); please report it\n")
         return 2
 

@@ -248,7 +248,8 @@ def node_charge(net: Net | None, tech: Tech) -> NodeCharge:
         None stands for a net with no capacitance.
     tech : Tech
         Gives ``vdd`` and, per device type, ``cj, cjsw, cjswg`` with grading
-        ``mj, mjsw, mjsw`` and built-in potentials ``pb, pbsw, pbsw``.
+        ``mj, mjsw, mjswg`` and built-in potentials ``pb, pbsw, pbswg``
+        (``mjswg``/``pbswg`` default to ``mjsw``/``pbsw``).
 
     Returns
     -------
@@ -294,8 +295,8 @@ def node_charge(net: Net | None, tech: Tech) -> NodeCharge:
             m.append(p.mjsw)
         else:
             c0.append(p.cjswg * geo.gate_perimeter_um if geo else 0.0)
-            pb.append(p.pbsw)
-            m.append(p.mjsw)
+            pb.append(p.pbswg)
+            m.append(p.mjswg)
         high.append(dtype == "pmos")
     return NodeCharge(
         float(c_lin), np.array(c0), np.array(pb, dtype=float), np.array(m, dtype=float),

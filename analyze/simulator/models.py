@@ -31,6 +31,7 @@ Examples
 ... .model nch.1 nmos level=1 vto={vt+sw}
 ... .model pch.1 pmos level=1
 ... ''')
+>>> saved = os.environ.get("DYNSHARE_CACHE")
 >>> os.environ["DYNSHARE_CACHE"] = folder
 >>> pruned = prune_models(Models(library=lib, corners=("tt",)), "tt", ["mynfet"])
 >>> [ln for ln in open(pruned.path).read().splitlines() if not ln.startswith("*")]
@@ -39,7 +40,7 @@ Examples
 ('subckt', False)
 >>> prune_models(Models(library=lib, corners=("tt",)), "tt", ["mynfet"]).cached
 True
->>> del os.environ["DYNSHARE_CACHE"]
+>>> _ = os.environ.pop("DYNSHARE_CACHE") if saved is None else os.environ.update(DYNSHARE_CACHE=saved)
 """
 
 from __future__ import annotations

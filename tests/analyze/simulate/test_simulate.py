@@ -228,3 +228,18 @@ def test_errors(setup, tmp_path):
                            "--simulate", "--corner", "xx"], capture_output=True, text=True)
     assert proc.returncode == 2 and "corner xx is not in models.corners (tt, ss, ff)" in proc.stderr
     assert proc.stderr.count("\n") == 1
+
+
+def test_text_and_html_show_analysis_and_simulation(setup, tmp_path):
+    """The text report has the simulation table; the HTML report has it and
+    a V(X) waveform (README, "Simulating the worst cases")."""
+    src, tech, files, tmp = setup
+    html_out = tmp_path / "r.html"
+    proc = subprocess.run([sys.executable, "-m", "analyze", "check", str(files["NAND3K"]), "--tech", str(tech),
+                           "--simulate", "--corner", "tt", "--html", str(html_out)],
+                          capture_output=True, text=True, timeout=600)
+    assert proc.returncode == 1, proc.stderr
+    assert "simulation    ngspice with the foundry models" in proc.stdout
+    assert "settled" in proc.stdout and "rising" in proc.stdout
+    page = html_out.read_text()
+    assert "Simulation with the foundry models" in page and 'class="waveform"' in page and "<polyline" in page

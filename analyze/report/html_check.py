@@ -162,7 +162,7 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
         out.append(table(["node", "part", "total fF", "junction fF", "wire fF", "gate + overlap fF", "location"],
                          _cap_rows(circuit, st, [st.dynamic_node] + list(wc.shared_nodes)), cls="caps"))
     out.append(f'<table class="props verdict"><tbody><tr><th>margin</th><td class="num">{r.margin_v:+.3f} V</td>'
-               f"{status_html(r.status)}</tr></tbody></table>")
+               f"{status_html(r.analysis_status or r.status)}</tr></tbody></table>")
     out.append(flags_table(r))
     if r.simulation:
         out.append(_simulation(r, tech))
@@ -186,7 +186,8 @@ def _simulation(r, tech) -> str:
     head = (f'<h3>Simulation with the foundry models</h3><p class="note">ngspice, every input-arrival case the '
             f"constraints allow, keeper in (and without its help in the last column). The analysis said "
             f"{r.analysis_status.upper()} (v_final {fmt_v(r.worst_case.v_final) if r.worst_case else '–'}, "
-            f"threshold {fmt_v(r.threshold_v)}); the simulation says {r.status.upper()}.</p>")
+            f"threshold {fmt_v(r.threshold_v)}); the simulation says {r.status.upper()}.</p>"
+            + "".join(f'<p class="note">{html.escape(n)}</p>' for n in r.simulation_notes))
     svg = ""
     if worst.waveform is not None:
         t, v = worst.waveform

@@ -160,7 +160,8 @@ def stage_json(result, circuit: Circuit) -> dict:
         "worst_case": worst_case_json(result.worst_case),
         "flags": flags_json(result.flags),
         "flag_note": result.flag_note,
-        **({"analysis_status": result.analysis_status, "simulation": simulation_json(result.simulation)}
+        **({"analysis_status": result.analysis_status, "simulation": simulation_json(result.simulation),
+            "simulation_notes": list(result.simulation_notes)}
            if result.simulation else {}),
     }
 

@@ -98,7 +98,9 @@ def stage_block(result, circuit: Circuit, tech) -> str:
         out.append(f"  v_final       {wc.v_final:.3f} V   (lossless estimate {wc.v_final_linear:.3f} V)")
         out.append(f"  droop         {wc.droop_v:.3f} V")
     sign = "+" if result.margin_v >= 0 else ""
-    out.append(f"  margin        {sign}{result.margin_v:.3f} V   {verdict}")
+    analysis_verdict = (result.analysis_status or result.status).upper()
+    out.append(f"  margin        {sign}{result.margin_v:.3f} V   {analysis_verdict}"
+               f"{'   (analysis; the simulation decides, see below)' if result.simulation else ''}")
     if result.flags:
         action = "precharge" if st.polarity == "n" else "predischarge"
         out.append(f"  fix: add {action} devices on")
@@ -119,7 +121,9 @@ def simulation_lines(result) -> list[str]:
     sims = result.simulation
     word = "v_min" if result.stage.polarity == "n" else "v_max"
     out = [f"  simulation    ngspice with the foundry models; analysis said {result.analysis_status.upper()}, "
-           f"simulation says {result.status.upper()}",
+           f"simulation says {result.status.upper()}"]
+    out += [f"    note: {note}" for note in getattr(result, "simulation_notes", [])]
+    out += [
            f"    {'corner':<7} {'case':<8} {'pattern':<22} {word:>7} {'at ns':>6} {'thresh':>7} {'margin':>7}"
            f"  {'':<4}  {'no keeper':>9}"]
     for s in sims:

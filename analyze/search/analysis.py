@@ -101,6 +101,8 @@ class StageResult:
         ``--simulate`` ran; then ``status`` is the simulated verdict and
         ``analysis_status`` the analysis' own.
     analysis_status : str or None
+    simulation_notes : list of str
+        What the simulation had to assume (an undriven gate tied off, ...).
     """
 
     stage: Stage
@@ -113,8 +115,9 @@ class StageResult:
     counted_patterns: int = 0
     simulation: list = field(default_factory=list)
     analysis_status: str | None = None
+    simulation_notes: list = field(default_factory=list)
 
-    def with_simulation(self, sims: list) -> "StageResult":
+    def with_simulation(self, sims: list, notes=()) -> "StageResult":
         """This result with ``sims`` attached and the simulated verdict:
         fail when any simulated case fails."""
         from dataclasses import replace
@@ -122,7 +125,8 @@ class StageResult:
         if not sims:
             return self
         status = "fail" if any(s.status == "fail" for s in sims) else "pass"
-        return replace(self, simulation=list(sims), analysis_status=self.status, status=status)
+        return replace(self, simulation=list(sims), analysis_status=self.status, status=status,
+                       simulation_notes=list(notes))
 
 
 def _prepared(circuit, stage, tech, constraints, precharged):

@@ -27,7 +27,12 @@ Waveforms (ns)
 ``0 … RESET_NS``: clock at its evaluation level and every input on, so the
 dynamic node and every internal node discharge (an earlier evaluation).
 ``RESET_NS … EVAL_NS``: precharge (clock at its precharge level), each input
-at its precharge level for the run's arrival case.  ``EVAL_NS``: the clock
+at its precharge level for the run's arrival case.  Every internal node
+that no clocked device precharges is held at the rail (ground; p-type:
+VDD) by an ideal switch that opens ``RELEASE_NS`` before evaluation: the
+state "discharged in an earlier cycle" that the analysis assumes, without
+the charge that falling gates would otherwise couple into floating nodes
+(which depends on the order the inputs fall in).  ``EVAL_NS``: the clock
 and the late inputs move to their evaluation levels with EDGE_NS edges.
 The lowest dynamic-node voltage (highest, p-type) is measured from
 ``EVAL_NS`` to ``EVAL_NS + evaluation_ns``.
@@ -47,10 +52,11 @@ from extract.circuit import CapParts, Circuit, Device, JunctionGeometry
 from extract.tech import Tech
 
 __all__ = ["Run", "StageDeck", "stage_deck", "stage_devices", "device_line", "RESET_NS", "EVAL_NS", "EDGE_NS",
-           "MAX_INSTANCES"]
+           "MAX_INSTANCES", "RELEASE_NS"]
 
 RESET_NS = 1.0
 EVAL_NS = 3.0
+RELEASE_NS = 0.2
 EDGE_NS = 0.05
 #: Device instances per deck above which ngspice's set-up time grows fast.
 MAX_INSTANCES = 40
@@ -224,6 +230,16 @@ def stage_deck(circuit: Circuit, stage: Stage, tech: Tech, runs: list[Run], *, i
                 continue
             if net in channel:
                 nets[net] = f"n{len(nets)}"
+            elif _role(circuit, tech, net) == "clock" and net not in off_ties:
+                # a second clock (delayed or complementary): its phase is not
+                # known, so it cannot be driven right; refuse rather than tie
+                # a footer or precharge device off and pass a failing stage
+                from extract.errors import InputError
+
+                raise InputError(circuit.source or circuit.cell,
+                                 f"stage {stage.dynamic_node}: device {d.name} is gated by clock {net}, not by the "
+                                 f"stage's clock {stage.clock}; --simulate drives one clock per stage",
+                                 f"cell {circuit.cell}")
             elif net not in off_ties:
                 off_ties[net] = "vdd" if d.type == "pmos" else "0"
                 notes.append(f"gate net {net} is driven by nothing in the stage; tied to turn {d.name} off")
@@ -239,6 +255,7 @@ def stage_deck(circuit: Circuit, stage: Stage, tech: Tech, runs: list[Run], *, i
         return nets[net]
 
     body = {"nmos": "0", "pmos": "vdd"}
+    held = [n for n in stage.internal_nodes if n in nets and n not in stage.secondary_precharge]
     extra = _outside_parts(circuit, tech, inside, set(nets))
     caps = {}
     for net, name in nets.items():
@@ -265,12 +282,18 @@ def stage_deck(circuit: Circuit, stage: Stage, tech: Tech, runs: list[Run], *, i
             out.append(device_line(f"r{r}d{k}", d, at(d.drain), g, at(d.source), body[d.type], m,
                                    kinds.get(m.lower(), "subckt"), scale))
         out += [f"Cr{r}{name} r{r}_{name} 0 {c:.6g}f" for name, c in sorted(caps.items())]
+        rail = "0" if n_type else "vdd"
+        for net in held:
+            out.append(f"Sr{r}{nets[net]} r{r}_{nets[net]} {rail} hold 0 dynshare_hold")
         return out
 
     lines = []
     clk_eval, clk_pre = (vdd, 0.0) if n_type else (0.0, vdd)
     on = vdd if n_type else 0.0
     lines.append("Vdd vdd 0 " + f"{vdd:.6g}")
+    if held:
+        lines.append(f"Vhold hold 0 {_pwl([(0, 1.0), (EVAL_NS - RELEASE_NS, 1.0), (EVAL_NS - RELEASE_NS + EDGE_NS, 0.0)])}")
+        lines.append(".model dynshare_hold sw vt=0.5 vh=0.1 ron=1 roff=1e14")
     lines.append(f"Vclk clk 0 {_pwl([(0, clk_eval), (RESET_NS, clk_eval), (RESET_NS + EDGE_NS, clk_pre), (EVAL_NS, clk_pre), (EVAL_NS + EDGE_NS, clk_eval)])}")
     x = nets[stage.dynamic_node]
     out_net = nets.get(stage.receivers[0].output) if stage.receivers else None

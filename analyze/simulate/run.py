@@ -29,7 +29,7 @@ from extract.circuit import Circuit
 from extract.errors import InputError
 from extract.tech import Tech
 
-__all__ = ["SimulatedCase", "simulate_stage", "device_models"]
+__all__ = ["SimulatedCase", "simulate_stage", "simulate_result", "device_models"]
 
 
 @dataclass
@@ -144,8 +144,17 @@ def _corners(tech: Tech, wanted) -> list:
     return out
 
 
+def simulate_result(circuit: Circuit, result: StageResult, tech: Tech, constraints: Constraints | None = None,
+                    corners=None, count: int = 3) -> StageResult:
+    """``result`` with its simulation attached (see :func:`simulate_stage`)
+    and the notes of what the decks had to assume."""
+    notes: list[str] = []
+    sims = simulate_stage(circuit, result, tech, constraints, corners, count, notes=notes)
+    return result.with_simulation(sims, sorted(set(notes)))
+
+
 def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraints: Constraints | None = None,
-                   corners=None, count: int = 3) -> list[SimulatedCase]:
+                   corners=None, count: int = 3, notes: list | None = None) -> list[SimulatedCase]:
     """Simulate the worst patterns of one stage at every corner.
 
     Parameters
@@ -157,6 +166,8 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
         Default: the tech file's ``[models] corners`` (or the whole library).
     count : int
         Distinct worst patterns to simulate.
+    notes : list, optional
+        Receives what the decks had to assume (an undriven gate tied off).
 
     Returns
     -------
@@ -220,6 +231,8 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
                             kinds=pruned.kinds, scale=pruned.scale, with_threshold=g == 0,
                             title=f"dynshare: stage {stage.dynamic_node} of {circuit.cell}, corner "
                             f"{corner or 'library'}, part {g + 1} of {len(groups)}")
+            if notes is not None:
+                notes.extend(sd.notes)
             expect = [m["v"] for m in sd.measures] + sd.thresholds
             purpose = (f"simulation of stage {stage.dynamic_node} of {circuit.cell} at corner "
                        f"{corner or '(whole library)'}")

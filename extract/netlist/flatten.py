@@ -93,6 +93,8 @@ __all__ = ["flatten", "terminal_junction"]
 #: Instance parameters of a transistor and whether each is a length (1) or an area (2).
 _MOS_KEYS = {"w": 1, "l": 1, "ad": 2, "as": 2, "pd": 1, "ps": 1}
 _MAX_LENGTH_UM = 1000.0
+#: Shorter W or L than this (1 nm) is a unit mistake, not a device.
+_MIN_LENGTH_UM = 1e-3
 _MAX_COUNT = 100_000
 
 
@@ -289,6 +291,11 @@ class _Builder:
             if v < 0 or (v == 0 and key in ("w", "l")):
                 raise self.error(f"{name}: {key.upper()} must be {'positive' if key in ('w', 'l') else '>= 0'}, "
                                  f"got {raw:g}", card.place)
+            if key in ("w", "l") and v < _MIN_LENGTH_UM:
+                raise self.error(
+                    f"{name}: {key.upper()}={raw:g} is {v:g} µm with scale {self.scale:g}, below "
+                    f"{_MIN_LENGTH_UM:g} µm; {self._unit_hint()}", card.place,
+                )
             if v > limit:
                 raise self.error(
                     f"{name}: {key.upper()}={raw:g} is {v:g} {'µm²' if power == 2 else 'µm'} "
@@ -303,6 +310,9 @@ class _Builder:
                              given.pop("w"), given.pop("l"), given, m * nf, nf))
 
     def _unit_hint(self) -> str:
+        if self.scale < 1.0:
+            return ("lengths are multiplied by the scale ([netlist] scale in the tech file or the file's "
+                    ".option scale); write them in that unit, without SI suffixes")
         if self.scale == 1.0:
             return ("SPICE values are in metres (write 1u for 1 µm, 1p for 1 µm²); for lengths "
                     "in µm set [netlist] scale = 1e-6 in the tech file")

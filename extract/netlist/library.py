@@ -278,10 +278,12 @@ class _Parser:
         if section is not None:
             data = _lib_section(data, section, shown, card.place)
         what = f"{shown} section {section}" if section else shown
-        # a file (or section) that defines device models, or brings no
-        # subcircuit at all, is a model library: the tech file has the
-        # device parameters, so it is not read (nor what it includes)
-        if _MODEL_LINE.search(data) or not _SUBCKT_LINE.search(data):
+        # what brings no subcircuit at all, or a .lib section that defines
+        # device models (a foundry corner), is a model library: the tech
+        # file has the device parameters, so it is not read (nor what it
+        # includes); an included file with subcircuits is read, its .model
+        # cards only giving model names a type
+        if not _SUBCKT_LINE.search(data) or (section is not None and _MODEL_LINE.search(data)):
             if what not in self.lib.skipped:
                 self.lib.skipped.append(what)
             return
@@ -401,8 +403,9 @@ def parse_library(text: str, path: str) -> Library:
     Notes
     -----
     ``.include FILE`` and ``.lib FILE SECTION`` are followed, relative to
-    the including file, when what they bring defines subcircuits and no
-    ``.model``; anything else is a model library and is skipped unread
+    the including file, when what they bring defines subcircuits (a
+    ``.lib`` section also only when it holds no ``.model``); anything else
+    is a model library and is skipped unread
     (listed in :attr:`Library.skipped`).  A byte-level scan decides this
     before any parsing, so a foundry model library costs one read, not a
     parse.  Otherwise one pass over the cards, linear in the text read.

@@ -243,3 +243,26 @@ def test_a_tech_file_without_layers_refuses_a_layout(files):
     assert proc.returncode == 2
     assert proc.stderr == f"error: {files['tech']}: layers: has no [layers] tables, so it can read netlists " \
                           "only; describe the drawn layers to read a layout\n"
+
+
+def test_lengths_below_a_nanometre_are_a_unit_mistake(tmp_path, files):
+    """``w=0.65u`` read with scale 1e-6 would be 0.65 pm: refused with the
+    file, line and a hint (SPICE suffixes multiply again by the scale)."""
+    bad = tmp_path / "suffix.cdl"
+    bad.write_text(".SUBCKT A y a\nM1 y a 0 0 nch w=0.65u l=0.15u\n.ENDS\n")
+    proc = _run("check", bad, "--tech", files["tech"])
+    assert proc.returncode == 2 and proc.stderr.count("\n") == 1
+    assert proc.stderr.startswith(f"error: {bad}: line 2: M1: W=6.5e-07 is 6.5e-07 µm with scale 1e-06, below 0.001 µm")
+
+
+def test_an_included_file_with_models_and_cells_is_read(tmp_path, files):
+    """An .include that defines cells and also .model cards brings the cells
+    (only a .lib corner section or a file without subcircuits is a model
+    library)."""
+    (tmp_path / "cells.sp").write_text(".model nch nmos level=1\n.model pch pmos level=1\n" + _spice("m"))
+    top = tmp_path / "top.sp"
+    top.write_text(".include cells.sp\n.subckt TOP VDD VSS CLK A B X OUT\nXI VDD VSS CLK A B X OUT DNAND2\n.ends\n")
+    proc = _run("check", top, "--tech", files["tech"], "--cell", "TOP", "--json", "-")
+    assert proc.returncode in (0, 1), proc.stderr
+    assert len(json.loads(proc.stdout)["stages"]) == 1 and "model librar" not in proc.stderr
+

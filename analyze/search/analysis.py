@@ -94,8 +94,9 @@ class StageResult:
         the dynamic node at its starting level (VDD, or 0 V for p-type).
     flags : list of Flag
     flag_note : str or None
-    counted_patterns : int
-        Number of counted patterns the constraints allow.
+    counted_patterns : int or None
+        Number of counted patterns the constraints allow; None when the
+        count gave up (:data:`analyze.search.patterns.COUNT_BUDGET`).
     simulation : list
         Simulated cases (:class:`analyze.simulate.run.SimulatedCase`) when
         ``--simulate`` ran; then ``status`` is the simulated verdict and
@@ -110,7 +111,7 @@ class StageResult:
     worst_case: WorstCase | None
     flags: list[Flag] = field(default_factory=list)
     flag_note: str | None = None
-    counted_patterns: int = 0
+    counted_patterns: int | None = 0
     simulation: list = field(default_factory=list)
     analysis_status: str | None = None
 

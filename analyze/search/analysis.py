@@ -286,8 +286,12 @@ def iter_counted_patterns(
             return
 
 
-def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None):
     """Recognise the stages of ``circuit`` and analyse each one.
+
+    ``progress``, when given, is called with the number of stages once they
+    are recognised and returns the function to call after each stage is
+    analysed (see :meth:`analyze.cli.progress.Steps.counted`).
 
     Returns
     -------
@@ -297,7 +301,12 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
     recognition = find_stages(circuit, tech)
     if constraints is not None:
         check_constraints_apply(constraints, recognition.stages, constraints_path)
-    results = [analyze_stage(circuit, st, tech, constraints) for st in recognition.stages]
+    tick = progress(len(recognition.stages)) if progress else None
+    results = []
+    for st in recognition.stages:
+        results.append(analyze_stage(circuit, st, tech, constraints))
+        if tick:
+            tick()
     return recognition, results
 
 

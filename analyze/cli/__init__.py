@@ -4,7 +4,8 @@ Modules: :mod:`~analyze.cli.main` (argument parsing, exit status),
 :mod:`~analyze.cli.commands` (one function per command),
 :mod:`~analyze.cli.check`, :mod:`~analyze.cli.compare`,
 :mod:`~analyze.cli.library`, :mod:`~analyze.cli.demo` (the commands' work),
-:mod:`~analyze.cli.output` (atomic writes, inputs never overwritten).
+:mod:`~analyze.cli.output` (atomic writes, inputs never overwritten),
+:mod:`~analyze.cli.progress` (progress of long steps on a terminal).
 
 May import: everything.  Nothing imports it but ``analyze.__main__``.
 """

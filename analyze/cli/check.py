@@ -73,8 +73,13 @@ def check_cell(args) -> int:
         from extract.errors import InputError
 
         raise InputError(args.tech, "--simulate needs a [models] table (the foundry model library)", "models")
-    circuit = open_cells(args.layout, tech).circuit(args.cell)
-    recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints)
+    from analyze.cli.progress import Steps
+
+    with Steps() as steps:
+        with steps.step(f"reading, flattening and extracting {args.layout}"):
+            circuit = open_cells(args.layout, tech).circuit(args.cell)
+        recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints,
+                                               progress=lambda n: steps.counted("analysing stages", n))
     if getattr(args, "simulate", False):
         from analyze.simulate.run import simulate_result
 

@@ -33,7 +33,7 @@ def _side(r) -> dict | None:
         "threshold_v": rounded(r.threshold_v),
         "margin_v": rounded(r.margin_v),
         "status": r.status,
-        "counted_patterns": int(r.counted_patterns),
+        "counted_patterns": None if r.counted_patterns is None else int(r.counted_patterns),
     }
 
 

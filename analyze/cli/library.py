@@ -2,9 +2,12 @@
 
 Each cell defined in the file is extracted and checked once (a cell
 placed many times is still one cell).  Cells are independent, so with
-``--jobs N`` they run in N worker processes, each of which reads the
-library once.  A cell that cannot be analysed is reported and the others
-still run.
+``--jobs N`` they run in N worker processes.  Start-up is paid once: where
+the platform can fork, the workers inherit the parent's imports and its
+opened library and tech file; elsewhere each worker opens them once, in
+its initializer.  Cells go out in small chunks, so the workers finish
+together.  A cell that cannot be analysed is reported and
+the others still run.
 
 Exit status: 2 when some cell could not be analysed (one ``error:`` line
 at the end names how many and which), else 1 when a stage fails, else 0.
@@ -12,6 +15,7 @@ at the end names how many and which), else 1 when a stage fails, else 0.
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 import sys
 from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -20,9 +24,38 @@ from dataclasses import dataclass, field
 from analyze.cli.output import check_outputs, emit
 from analyze.report.json_report import dumps, header, rounded, stage_json
 
-__all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library"]
+__all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library", "open_library"]
 
 _OPEN: dict = {}
+
+
+def open_library(path: str, tech_path: str, constraints_path: str | None = None):
+    """``(source, tech, constraints)`` of a library, opened once per
+    process (kept for :func:`check_cell_in_library`)."""
+    from analyze.cli.inputs import open_cells
+    from extract.techfile import load_tech
+
+    key = (path, tech_path, constraints_path)
+    if key not in _OPEN:
+        constraints = None
+        if constraints_path:
+            from analyze.search.constraints import load_constraints
+
+            constraints = load_constraints(constraints_path)
+        _OPEN.clear()
+        tech = load_tech(tech_path)
+        _OPEN[key] = (open_cells(path, tech), tech, constraints)
+    return _OPEN[key]
+
+
+def _worker_start(path, tech_path, constraints_path) -> None:
+    """Process-pool initializer: open the library once per worker."""
+    from extract.errors import InputError
+
+    try:
+        open_library(path, tech_path, constraints_path)
+    except InputError:
+        pass  # each cell will report it
 
 
 @dataclass
@@ -53,23 +86,11 @@ def check_cell_in_library(path: str, tech_path: str, cell: str, constraints_path
     """Extract and check one cell; never raises for bad input (it is
     recorded in the outcome).  The library and tech are read once per
     process."""
-    from analyze.cli.inputs import open_cells
     from analyze.search.analysis import analyse_circuit
     from extract.errors import InputError
-    from extract.techfile import load_tech
 
     try:
-        key = (path, tech_path, constraints_path)
-        if key not in _OPEN:
-            constraints = None
-            if constraints_path:
-                from analyze.search.constraints import load_constraints
-
-                constraints = load_constraints(constraints_path)
-            _OPEN.clear()
-            tech = load_tech(tech_path)
-            _OPEN[key] = (open_cells(path, tech), tech, constraints)
-        source, tech, constraints = _OPEN[key]
+        source, tech, constraints = open_library(path, tech_path, constraints_path)
         circuit = source.circuit(cell)
         recognition, results = analyse_circuit(circuit, tech)
         if constraints is not None:
@@ -111,19 +132,32 @@ def check_library(path, tech_path, cells, jobs=1, constraints_path=None, progres
             if progress:
                 progress(out)
     else:
-        # chunks of cells per task keep inter-process traffic small while
-        # leaving enough tasks (4 per worker) to balance the load
-        size = max(1, min(32, len(cells) // (4 * jobs)))
-        chunks = [cells[i : i + size] for i in range(0, len(cells), size)]
-        with ProcessPoolExecutor(max_workers=jobs) as pool:
-            futures = [pool.submit(_check_chunk, path, tech_path, ch, constraints_path) for ch in chunks]
-            for fut in as_completed(futures):
-                for out in fut.result():
-                    outcomes.append(out)
-                    if progress:
-                        progress(out)
+        for out in _pool_map(path, tech_path, cells, jobs, constraints_path):
+            outcomes.append(out)
+            if progress:
+                progress(out)
     outcomes.sort(key=lambda o: o.cell)
     return outcomes
+
+
+def _chunks(path, tech_path, cells, jobs, constraints_path) -> list[list[str]]:
+    """Cells in chunks for the pool: at most 16 cells, and small enough for
+    8 tasks per worker, so that the last tasks even the load out while
+    inter-process traffic stays a few messages per worker."""
+    size = max(1, min(16, len(cells) // (8 * jobs)))
+    return [cells[i : i + size] for i in range(0, len(cells), size)]
+
+
+def _pool_map(path, tech_path, cells, jobs, constraints_path):
+    """Outcomes of ``cells`` from ``jobs`` worker processes, as they finish."""
+    methods = multiprocessing.get_all_start_methods()
+    ctx = multiprocessing.get_context("fork" if "fork" in methods else None)
+    chunks = _chunks(path, tech_path, cells, jobs, constraints_path)
+    with ProcessPoolExecutor(max_workers=jobs, mp_context=ctx, initializer=_worker_start,
+                             initargs=(path, tech_path, constraints_path)) as pool:
+        futures = [pool.submit(_check_chunk, path, tech_path, ch, constraints_path) for ch in chunks]
+        for fut in as_completed(futures):
+            yield from fut.result()
 
 
 def summary_table(outcomes: list[CellOutcome]) -> str:
@@ -146,9 +180,7 @@ def summary_table(outcomes: list[CellOutcome]) -> str:
 
 
 def run_library(args) -> int:
-    from analyze.cli.inputs import open_cells
     from extract.errors import InputError
-    from extract.techfile import load_tech
 
     if getattr(args, "html", None):
         raise InputError(args.html, "--html is written per cell; it cannot be combined with --all-cells", "--html")
@@ -159,13 +191,9 @@ def run_library(args) -> int:
     if args.jobs is not None and args.jobs < 1:
         raise InputError(args.layout, f"--jobs must be at least 1, got {args.jobs}", "--jobs")
     check_outputs({"--json": args.json}, [args.layout, args.tech, args.constraints])
-    tech = load_tech(args.tech)  # validate before any work
-    constraints = None
-    if args.constraints:
-        from analyze.search.constraints import load_constraints
-
-        constraints = load_constraints(args.constraints)
-    cells = open_cells(args.layout, tech).cells
+    # opened once here; forked workers inherit it (see the module text)
+    source, tech, constraints = open_library(args.layout, args.tech, args.constraints)
+    cells = source.cells
     jobs = max(1, args.jobs or 1)
 
     from rich.console import Console

@@ -122,8 +122,9 @@ def _pattern_points(circuit, st, tech, result, constraints, max_patterns: int):
         pts.append((wc.v_final, f"{pattern_text(wc.inputs)}; shared: {' '.join(wc.shared_nodes) or 'none'}"))
     caption = ""
     wc = result.worst_case
-    if result.counted_patterns > len(pts):
-        caption = (f"Only {len(pts)} of {result.counted_patterns} counted patterns are drawn (the first in search "
+    if result.counted_patterns is None or result.counted_patterns > len(pts):
+        total = "the" if result.counted_patterns is None else str(result.counted_patterns)
+        caption = (f"Only {len(pts)} of {total} counted patterns are drawn (the first in search "
                    "order, plus the worst case).")
         if wc is not None and tuple(sorted(wc.inputs.items())) not in seen:
             pts.append((wc.v_final, f"{pattern_text(wc.inputs)} (worst case); shared: {' '.join(wc.shared_nodes)}"))
@@ -148,7 +149,8 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
         ("receiver threshold", f"{fmt_v(r.threshold_v)} (guard {tech.guard:g} V)"),
         ("inputs", " ".join(st.inputs) or "–"),
         (f"internal nodes {fix_action(st)}d", sp),
-        ("counted patterns", f"{r.counted_patterns} (patterns that keep the dynamic node from the rail)"),
+        ("counted patterns", "not counted (too many states)" if r.counted_patterns is None else
+         f"{r.counted_patterns} (patterns that keep the dynamic node from the rail)"),
     ]))
     out.append("<h3>Worst case</h3>")
     if wc is None:
@@ -166,7 +168,7 @@ def _stage_section(i, r, circuit, tech, constraints, max_patterns) -> str:
     out.append(flags_table(r))
     if r.simulation:
         out.append(_simulation(r, tech))
-    if r.counted_patterns:
+    if r.counted_patterns is None or r.counted_patterns:
         pts, caption = _pattern_points(circuit, st, tech, r, constraints, max_patterns)
         svg = pattern_plot_svg(pts, threshold_v=r.threshold_v, guard_v=tech.guard, vdd=tech.vdd,
                                polarity=st.polarity, caption=caption, pattern_id=f"s{i}")

@@ -156,7 +156,7 @@ def stage_json(result, circuit: Circuit) -> dict:
         "threshold_v": rounded(result.threshold_v),
         "margin_v": rounded(result.margin_v),
         "status": result.status,
-        "counted_patterns": int(result.counted_patterns),
+        "counted_patterns": None if result.counted_patterns is None else int(result.counted_patterns),
         "worst_case": worst_case_json(result.worst_case),
         "flags": flags_json(result.flags),
         "flag_note": result.flag_note,

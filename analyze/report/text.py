@@ -76,10 +76,11 @@ def stage_block(result, circuit: Circuit, tech) -> str:
         sp = ", ".join(f"{n} by {d}" for n, d in sorted(st.secondary_precharge.items()))
         out.append(f"  precharged    {sp}")
     wc = result.worst_case
+    n = "not counted (too many states)" if result.counted_patterns is None else str(result.counted_patterns)
     if wc is None:
-        out.append(f"  worst case    no counted pattern ({result.counted_patterns} patterns keep the node)")
+        out.append(f"  worst case    no counted pattern ({n} patterns keep the node)")
     else:
-        out.append(f"  worst case    {_pattern(wc.inputs)}   ({result.counted_patterns} counted patterns)")
+        out.append(f"  worst case    {_pattern(wc.inputs)}   ({n} counted patterns)")
         out.append("  shared nodes")
         names = [st.dynamic_node] + list(wc.shared_nodes)
         width = max(len(n) for n in names)

@@ -94,8 +94,9 @@ class StageResult:
         the dynamic node at its starting level (VDD, or 0 V for p-type).
     flags : list of Flag
     flag_note : str or None
-    counted_patterns : int
-        Number of counted patterns the constraints allow.
+    counted_patterns : int or None
+        Number of counted patterns the constraints allow; None when the
+        count gave up (:data:`analyze.search.patterns.COUNT_BUDGET`).
     simulation : list
         Simulated cases (:class:`analyze.simulate.run.SimulatedCase`) when
         ``--simulate`` ran; then ``status`` is the simulated verdict and
@@ -112,7 +113,7 @@ class StageResult:
     worst_case: WorstCase | None
     flags: list[Flag] = field(default_factory=list)
     flag_note: str | None = None
-    counted_patterns: int = 0
+    counted_patterns: int | None = 0
     simulation: list = field(default_factory=list)
     analysis_status: str | None = None
     simulation_notes: list = field(default_factory=list)
@@ -289,8 +290,12 @@ def iter_counted_patterns(
             return
 
 
-def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None):
     """Recognise the stages of ``circuit`` and analyse each one.
+
+    ``progress``, when given, is called with the number of stages once they
+    are recognised and returns the function to call after each stage is
+    analysed (see :meth:`analyze.cli.progress.Steps.counted`).
 
     Returns
     -------
@@ -300,7 +305,12 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None):
     recognition = find_stages(circuit, tech)
     if constraints is not None:
         check_constraints_apply(constraints, recognition.stages, constraints_path)
-    results = [analyze_stage(circuit, st, tech, constraints) for st in recognition.stages]
+    tick = progress(len(recognition.stages)) if progress else None
+    results = []
+    for st in recognition.stages:
+        results.append(analyze_stage(circuit, st, tech, constraints))
+        if tick:
+            tick()
     return recognition, results
 
 

@@ -17,12 +17,14 @@ from analyze.physics.sharing import SharingModel
 from analyze.search.worstcase import Found, worst_case
 from extract.circuit import Circuit
 
-__all__ = ["Flag", "find_flags", "SEARCH_BUDGET", "SET_LIMIT"]
+__all__ = ["Flag", "find_flags", "SEARCH_BUDGET", "SET_LIMIT", "REFUTE_TRIES"]
 
 #: Worst-case searches the exhaustive part may run.
 SEARCH_BUDGET = 256
 #: Candidate sets the exhaustive part may look at.
 SET_LIMIT = 100_000
+#: Latest pooled patterns tried against a candidate set before searching.
+REFUTE_TRIES = 8
 
 
 @dataclass
@@ -64,6 +66,123 @@ def _bits(nodes) -> int:
     return mask
 
 
+class _Searches:
+    """Worst-case searches of one stage under different pre-conditioned
+    sets, sharing their work.
+
+    * every worst pattern found goes into a pool; a pool pattern is a
+      counted pattern under any pre-conditioned set (the component does not
+      depend on it), so its final voltage under a new set is an upper
+      bound on that set's worst case, one final-voltage solve away;
+    * searches start from the best pool pattern (``seed`` of
+      :func:`analyze.search.worstcase.worst_case`) and share one cache of
+      dynamic-node components.
+    """
+
+    def __init__(self, model: SharingModel, choices: list[Choice]):
+        self.model, self.choices = model, choices
+        self.found: dict[int, Found | None] = {}
+        self.pool: list[tuple[tuple[int, ...], int]] = []
+        self.components: dict = {}
+        self.models: dict[int, SharingModel] = {}
+
+    def under(self, mask: int) -> SharingModel:
+        m = self.models.get(mask)
+        if m is None:
+            m = self.models[mask] = self.model.with_precharged([self.model.nodes[i] for i in _node_list(mask)])
+        return m
+
+    def u(self, mask: int, pattern) -> float:
+        """Normalised final voltage of a counted ``pattern`` under ``mask``
+        (only the pre-conditioned nodes inside its component matter)."""
+        values, comp = pattern
+        return self.under(mask & comp).u_pattern(values, comp)
+
+    def search(self, mask: int, seed=None) -> Found | None:
+        if mask not in self.found:
+            if seed is None and self.pool:
+                seed = min(self.pool, key=lambda p: self.u(mask, p))
+            got = worst_case(self.under(mask), self.choices, seed=seed, components=self.components)
+            self.found[mask] = got
+            if got is not None:
+                self.pool.append((got.values, got.component))
+        return self.found[mask]
+
+    def refuted(self, mask: int, required_u: float) -> bool:
+        """True when one of the :data:`REFUTE_TRIES` latest pool patterns
+        already ends below ``required_u`` under ``mask`` (a refuter moves
+        to the end, so it is tried first next time)."""
+        for k in range(len(self.pool) - 1, max(-1, len(self.pool) - 1 - REFUTE_TRIES), -1):
+            if self.u(mask, self.pool[k]) < required_u:
+                self.pool.append(self.pool.pop(k))
+                return True
+        return False
+
+    def repaired(self, mask: int, node: int, pattern):
+        """The variants of ``pattern`` with one choice next to ``node``
+        switched to another option that leave ``node`` out of the
+        component: the lowest ``(u, values, component)`` under ``mask``, an
+        upper bound on its worst case (pre-conditioning ``node`` makes the
+        worst pattern avoid it where it can).  ``pattern`` itself when no
+        such variant counts.  Such variants hold no newly pre-conditioned
+        node, so their final voltages are mostly cached already."""
+        model = self.model
+        values, comp = pattern
+        best = None
+        near = model.node_devices[node]
+        on0 = model.conducting(values)
+        for c in self.choices:
+            if not c.devices & near:
+                continue
+            for opt, mask_on in zip(c.options, c.on):
+                on = (on0 & ~c.devices) | mask_on
+                if not (on0 & ~on & near):
+                    continue  # turns off no device at the node: it stays joined
+                vals = list(values)
+                for col, v in zip(c.columns, opt):
+                    vals[col] = v
+                vals = tuple(vals)
+                hit = self.components.get(on)
+                if hit is None:
+                    hit = self.components[on] = model.component(on)
+                comp2, tied = hit
+                if tied or (comp2 >> node) & 1:
+                    continue
+                u = self.u(mask, (vals, comp2))
+                if best is None or (u, vals) < best[:2]:
+                    best = (u, vals, comp2)
+        return best if best is not None else (self.u(mask, pattern), values, comp)
+
+    def best_addition(self, mask: int, options: list[int]) -> int:
+        """The node ``i`` of ``options`` maximising the worst case under
+        ``mask | 1 << i`` (the first on a tie), exactly, searching only the
+        nodes whose pool bound could still win."""
+        base = self.search(mask)
+        bounds = []
+        for i in options:
+            u, vals, comp = self.repaired(mask | 1 << i, i, (base.values, base.component))
+            bounds.append((u, i, (vals, comp)))
+        bounds.sort(key=lambda t: (-t[0], t[1]))
+        best = None
+        for ub, i, seed in bounds:
+            if best is not None and ub < best[0] - 1e-12:
+                break  # sorted: no later bound reaches the best exact value
+            w = self.search(mask | 1 << i, seed).u_final
+            if best is None or w > best[0] or (w == best[0] and i < best[1]):
+                best = (w, i)
+        return best[1]
+
+
+def _node_list(mask: int) -> list[int]:
+    out, i = [], 0
+    while mask:
+        if mask & 1:
+            out.append(i)
+        mask >>= 1
+        i += 1
+    return out
+
+
 def find_flags(
     circuit: Circuit, model: SharingModel, choices: list[Choice], required_u: float
 ) -> tuple[list[Flag], str | None]:
@@ -96,34 +215,36 @@ def find_flags(
     (first in sorted order on a tie).  Pre-conditioning a node only raises
     every pattern's final voltage, so a failing worst case whose
     discharged shared nodes a set misses stays failing under it: such sets
-    are skipped without a search (every failing worst case found is
-    remembered).  When more than :data:`SEARCH_BUDGET` searches or
-    :data:`SET_LIMIT` sets would be needed, a greedy fallback adds, one at
-    a time, the discharged node of the current worst case whose
-    pre-conditioning helps most.
+    are skipped without a search.  Every worst pattern found is pooled: a
+    set under which a pooled pattern still ends below the requirement
+    fails without a search (one cached final-voltage solve), and searches
+    start from the best pooled pattern.  A refuted set counts against the
+    budget as the search it saves, so the sets tried, the answer and the
+    point of giving up are those of a search of every set.  When more than
+    :data:`SEARCH_BUDGET` searches or :data:`SET_LIMIT` sets would be needed, a greedy fallback
+    adds, one at a time, the discharged node of the current worst case
+    whose pre-conditioning helps most.  Each greedy step (and the ordering
+    of the flags) bounds every option by a pooled pattern repaired to
+    avoid the new node and searches exactly only the options whose bound
+    can still win, best bound first; on a wide OR that is one search a
+    step, so k flags among n legs cost O(k) searches and O(k · n) solves.
     """
-    found: dict[int, Found] = {}
-
-    def search(mask: int) -> Found:
-        if mask not in found:
-            names = [model.nodes[i] for i in range(len(model.nodes)) if (mask >> i) & 1]
-            found[mask] = worst_case(model.with_precharged(names), choices)
-        return found[mask]
+    work = _Searches(model, choices)
 
     def ok(mask: int) -> bool:
-        return search(mask).u_final >= required_u
+        return work.search(mask).u_final >= required_u
 
     def discharged(mask: int) -> int:
-        return search(mask).component & ~(model.precharged | mask | 1)
+        return work.search(mask).component & ~(model.precharged | mask | 1)
 
     cands = _candidates(model)
-    base = search(0)
+    base = work.search(0)
     if base is None or base.u_final >= required_u:
         return [], None
     if not cands:
         return [], "no internal node shares charge with the dynamic node, so no precharge device can help"
     if not ok(_bits(cands)):
-        u = search(_bits(cands)).u_final
+        u = work.search(_bits(cands)).u_final
         why = (
             "the receiver threshold plus guard is beyond the supply, so the stage cannot pass"
             if u >= model.vdd - 1e-9
@@ -133,18 +254,18 @@ def find_flags(
             f"even with every internal node pre-conditioned the worst case ends at "
             f"{model.to_volts(u):.3f} V, still short of the receiver threshold plus guard: {why}"
         )
-    chosen = _smallest(cands, search, ok, discharged)
+    chosen = _smallest(cands, work, ok, discharged, required_u)
     note = None
     if chosen is None:
-        chosen = _greedy(search, ok, discharged)
+        chosen = _greedy(work, ok, discharged)
         note = (
             "the exhaustive search for the fewest nodes ran out of its budget; "
             "these flags were chosen greedily and may not be the fewest"
         )
-    return _ordered(circuit, model, chosen, search), note
+    return _ordered(circuit, model, chosen, work), note
 
 
-def _smallest(cands, search, ok, discharged):
+def _smallest(cands, work, ok, discharged, required_u):
     """Exhaustive part of :func:`find_flags`: the best passing set of the
     smallest size, or None when the budget runs out."""
     misses = [discharged(0)]
@@ -158,11 +279,13 @@ def _smallest(cands, search, ok, discharged):
             mask = _bits(nodes)
             if any(not (mask & m) for m in misses):
                 continue
-            searches += 1
+            searches += 1  # a refuted set counts as the search it saves
             if searches > SEARCH_BUDGET:
                 return None
+            if mask not in work.found and work.refuted(mask, required_u):
+                continue
             if ok(mask):
-                if best is None or search(mask).u_final > search(best).u_final:
+                if best is None or work.search(mask).u_final > work.search(best).u_final:
                     best = mask
             else:
                 misses.append(discharged(mask))
@@ -171,21 +294,20 @@ def _smallest(cands, search, ok, discharged):
     return None
 
 
-def _greedy(search, ok, discharged) -> int:
+def _greedy(work, ok, discharged) -> int:
     mask = 0
     while not ok(mask):
-        options = [mask | (1 << i) for i in range(discharged(mask).bit_length()) if (discharged(mask) >> i) & 1]
-        mask = max(options, key=lambda m: search(m).u_final)
+        mask |= 1 << work.best_addition(mask, _node_list(discharged(mask)))
     return mask
 
 
-def _ordered(circuit: Circuit, model: SharingModel, chosen: int, search) -> list[Flag]:
+def _ordered(circuit: Circuit, model: SharingModel, chosen: int, work) -> list[Flag]:
     """The chosen nodes as flags, best first, each with its cumulative result."""
     action = "add precharge device" if model.stage.polarity == "n" else "add predischarge device"
-    left = [i for i in range(len(model.nodes)) if (chosen >> i) & 1]
+    left = _node_list(chosen)
     applied, flags = 0, []
     while left:
-        i = max(left, key=lambda j: (search(applied | (1 << j)).u_final, -j))
+        i = work.best_addition(applied, left) if len(left) > 1 else left[0]
         left.remove(i)
         applied |= 1 << i
         name = model.nodes[i]
@@ -197,7 +319,7 @@ def _ordered(circuit: Circuit, model: SharingModel, chosen: int, search) -> list
             Flag(
                 node=name,
                 action=action,
-                v_final_after=model.to_volts(search(applied).u_final),
+                v_final_after=model.to_volts(work.search(applied).u_final),
                 location_um=None if net is None else net.location_um,
                 between=tuple(sorted(between)),
             )

@@ -18,7 +18,7 @@ import numpy as np
 from analyze.search.constraints import Block
 from analyze.physics.sharing import RAIL, SharingModel
 
-__all__ = ["Choice", "bind_blocks", "iter_counted", "count_counted"]
+__all__ = ["Choice", "bind_blocks", "iter_counted", "count_counted", "COUNT_BUDGET"]
 
 #: Patterns evaluated together by :func:`iter_counted`.
 CHUNK = 4096
@@ -144,6 +144,10 @@ def iter_counted(model: SharingModel, choices: list[Choice]) -> Iterator[tuple[t
     yield from walk(model.always_on)
 
 
+class _OverBudget(Exception):
+    """Raised inside :func:`count_counted` when the state budget runs out."""
+
+
 def _partition_key(model: SharingModel, on: int, boundary: list[int]) -> tuple[int, ...]:
     """Label each of ``boundary`` (node indices, RAIL allowed) by the smallest
     boundary member joined to it through devices ``on`` (the rail joins)."""
@@ -170,31 +174,154 @@ def _partition_key(model: SharingModel, on: int, boundary: list[int]) -> tuple[i
     return tuple(label[find(x)] for x in boundary)
 
 
-def count_counted(model: SharingModel, choices: list[Choice]) -> int:
-    """The number of counted patterns, exactly.
+def _bits_of(mask: int) -> list[int]:
+    """Indices of the set bits of ``mask``, ascending."""
+    out = []
+    while mask:
+        low = mask & -mask
+        out.append(low.bit_length() - 1)
+        mask ^= low
+    return out
+
+
+def _independent_groups(model: SharingModel, comp: int, on: int, live: list[int]) -> list[list[int]]:
+    """Split choices into groups that cannot interact.
+
+    ``live[k]`` is the device bitmask of the k-th choice that can still
+    matter.  Nodes are joined through those devices and the conducting ones
+    ``on``, never through the dynamic node's component ``comp`` or the rail;
+    choices meeting in a class of nodes are one group.  A path from the
+    dynamic node to the rail leaves ``comp`` for the last time and then runs
+    inside one class, so the pattern is counted exactly when no group ties
+    the node: the count is the product of the groups' counts.
+    """
+    parent: dict[int, int] = {}
+
+    def find(x: int) -> int:
+        root = x
+        while parent.get(root, root) != root:
+            root = parent[root]
+        while x != root:
+            parent[x], x = root, parent.get(x, x)
+        return root
+
+    def inner(x: int) -> bool:
+        return x != RAIL and not (comp >> x) & 1
+
+    every = 0
+    for m in live:
+        every |= m
+    for d in _bits_of(every | (on & ~every & model.touching(~comp & model.all_nodes))):
+        a, b = model.dev_a[d], model.dev_b[d]
+        if inner(a) and inner(b):
+            ra, rb = find(a), find(b)
+            if ra != rb:
+                parent[ra] = rb
+    owner: dict[int, int] = {}  # node class -> group leader (a choice index)
+    lead = list(range(len(live)))
+
+    def top(k: int) -> int:
+        while lead[k] != k:
+            lead[k] = lead[lead[k]]
+            k = lead[k]
+        return k
+
+    for k, m in enumerate(live):
+        for d in _bits_of(m):
+            for x in (model.dev_a[d], model.dev_b[d]):
+                if inner(x):
+                    r = find(x)
+                    if r in owner:
+                        a, b = top(owner[r]), top(k)
+                        if a != b:
+                            lead[max(a, b)] = min(a, b)
+                    else:
+                        owner[r] = k
+    groups: dict[int, list[int]] = {}
+    for k in range(len(live)):
+        groups.setdefault(top(k), []).append(k)
+    return list(groups.values())
+
+
+def _classes(model: SharingModel, comp: int, mask: int) -> int:
+    """Number of distinct nodes the devices ``mask`` touch outside
+    ``comp`` and the rail."""
+    seen = set()
+    for d in _bits_of(mask):
+        for x in (model.dev_a[d], model.dev_b[d]):
+            if x != RAIL and not (comp >> x) & 1:
+                seen.add(x)
+    return len(seen)
+
+
+#: Memoised sub-counts :func:`count_counted` may create before it gives up.
+COUNT_BUDGET = 200_000
+
+
+def count_counted(model: SharingModel, choices: list[Choice], budget: int | None = None) -> int | None:
+    """The number of counted patterns, exactly, or None past ``budget``.
 
     Parameters
     ----------
     model : SharingModel
     choices : list of Choice
+    budget : int or None
+        Most distinct sub-counts to compute (each costs O(devices));
+        None for :data:`COUNT_BUDGET`.
 
     Returns
     -------
-    int
+    int or None
+        None when the count would need more than ``budget`` sub-counts
+        (the report then says the patterns were not counted).
 
     Notes
     -----
-    Depth-first over the choices with memoisation.  At each step the
-    choices whose devices cannot touch any node the dynamic node may still
-    reach are *irrelevant*: they multiply the count by their option counts.
-    The rest of the count depends only on the relevant choices and on how
-    the devices turned on so far join their terminals (the boundary nodes,
-    the dynamic node and the rail), which is the memo key.  A series or
-    parallel ladder such as an n-leg mux takes O(n) states; the worst case
-    is exponential in the width of the network.
+    Depth-first over the choices with memoisation.  At each step
+
+    1. choices whose devices cannot touch any node the dynamic node may
+       still reach are *irrelevant*: they multiply the count by their
+       option counts;
+    2. the relevant choices fall into *independent groups*
+       (:func:`_independent_groups`: they meet only at the dynamic node's
+       component and the rail), and the count is the product of the
+       groups' counts;
+    3. each group branches on its choice that touches the most internal
+       nodes (a block spanning several legs, such as a one-hot select,
+       goes first, and its options leave the legs independent), then on
+       one next to the dynamic node's component (the last joined node);
+       a group's count is memoised on its choices and on how the
+       conducting devices join their terminals (the boundary nodes, the
+       dynamic node and the rail).
+
+    Bound: on a series-parallel network whose constraint blocks each lie
+    in one parallel branch, every branch is counted on its own and a
+    branch of k devices takes O(k) memoised states, so the count costs
+    O(devices²) operations; a block coupling b branches multiplies that
+    by its option count, once (O(options · devices²) for a one-hot select
+    over every leg).  Bridges between branches make the memo key a set
+    partition of the boundary, exponential in its width in the worst case;
+    past ``budget`` states the count gives up rather than run on.
+
+    Examples
+    --------
+    Two legs X – A – n – B – rail and X – C – rail: a pattern counts unless
+    A = B = 1 or C = 1, so 3 · 1 = 3 of the 8 patterns count.
+
+    >>> from analyze.physics.sharing import SharingModel
+    >>> from analyze.physics.charge import NodeCharge
+    >>> import numpy as np
+    >>> q = NodeCharge.linear(1.0, 1.8)
+    >>> m = SharingModel(None, 1.8, ("X", "n"), (q, q), np.ones(2), 0, ("A", "B", "C"),
+    ...                  ("MA", "MB", "MC"), (0, 1, 0), (1, RAIL, RAIL), (0, 1, 2), (1, 1, 1), 1.35)
+    >>> from analyze.search.constraints import Block
+    >>> count_counted(m, bind_blocks(m, []))
+    3
     """
+    budget = COUNT_BUDGET if budget is None else budget
     memo: dict = {}
     full = [c.devices for c in choices]
+    sizes = [len(c.options) for c in choices]
 
     def f(on: int, undecided: tuple[int, ...]) -> int:
         comp, tied = model.component(on)
@@ -205,22 +332,46 @@ def count_counted(model: SharingModel, choices: list[Choice]) -> int:
             possible |= full[i]
         reach, _ = model.component(possible)
         near = model.touching(reach)
-        relevant = tuple(i for i in undecided if full[i] & near)
-        mult = math.prod(len(choices[i].options) for i in undecided if not full[i] & near)
+        relevant = [i for i in undecided if full[i] & near]
+        total = 1
+        for i in undecided:
+            if not full[i] & near:
+                total *= sizes[i]
         if not relevant:
-            return mult
-        live = 0
-        for i in relevant:
-            live |= full[i] & near
-        ends = {model.dev_a[d] for d in range(len(model.devices)) if (live >> d) & 1}
-        ends |= {model.dev_b[d] for d in range(len(model.devices)) if (live >> d) & 1}
-        boundary = sorted(ends | {0, RAIL})
-        key = (relevant, tuple(boundary), _partition_key(model, on, boundary))
-        if key not in memo:
-            touch = model.touching(comp)
-            pick = next((i for i in relevant if full[i] & touch), relevant[0])
-            rest = tuple(i for i in relevant if i != pick)
-            memo[key] = sum(f(on | mask, rest) for mask in choices[pick].on)
-        return mult * memo[key]
+            return total
+        live = [full[i] & near for i in relevant]
+        for group in _independent_groups(model, comp, on, live):
+            total *= group_count(on, comp, tuple(relevant[k] for k in group), [live[k] for k in group])
+            if total == 0:
+                return 0
+        return total
 
-    return f(model.always_on, tuple(range(len(choices))))
+    def group_count(on: int, comp: int, group: tuple[int, ...], live: list[int]) -> int:
+        every = 0
+        for m in live:
+            every |= m
+        ends = {RAIL, 0}
+        for d in _bits_of(every):
+            ends.add(model.dev_a[d])
+            ends.add(model.dev_b[d])
+        boundary = sorted(ends)
+        key = (group, tuple(boundary), _partition_key(model, on, boundary))
+        hit = memo.get(key)
+        if hit is not None:
+            return hit
+        if len(memo) >= budget:
+            raise _OverBudget
+        touch = model.touching(comp)
+        pick = max(range(len(group)), key=lambda k: (_classes(model, comp, live[k]),
+                                                     bool(live[k] & touch), -k))
+        rest = group[:pick] + group[pick + 1:]
+        value = 0
+        for mask in choices[group[pick]].on:
+            value += f(on | mask, rest)
+        memo[key] = value
+        return value
+
+    try:
+        return f(model.always_on, tuple(range(len(choices))))
+    except _OverBudget:
+        return None

@@ -60,13 +60,26 @@ def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
     return Found(values, comp, u)
 
 
-def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | None:
+def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, components) -> Found | None:
     n = len(choices)
+    if components is None:
+        components = {}
+
+    def component(on: int) -> tuple[int, bool]:
+        hit = components.get(on)
+        if hit is None:
+            hit = components[on] = model.component(on)
+        return hit
+
     vals = [0] * len(model.inputs)
     for c in choices:
         for col, v in zip(c.columns, c.options[0]):
             vals[col] = v
     best: list = [None]  # ((rounded u, key), component, u)
+    if seed is not None:
+        values, comp = seed
+        u = model.u_pattern(values, comp)
+        best[0] = ((round(u, _DIGITS), tuple(values)), comp, u)
 
     def pruned(bound: float) -> bool:
         if best[0] is None:
@@ -98,10 +111,10 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
         children = []
         for k, mask in enumerate(choices[pick].on):
             on2 = on | mask
-            comp2, tied = model.component(on2)
+            comp2, tied = component(on2)
             if tied:
                 continue
-            reach, _ = model.component(possible_rest | mask)
+            reach, _ = component(possible_rest | mask)
             children.append((round(model.bound(reach, comp2), _DIGITS), k, on2, comp2))
         children.sort(key=lambda t: (t[0], t[1]))
         c = choices[pick]
@@ -110,13 +123,13 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
             visit(on2, comp2, rest, bnd)
         set_option(c, 0)
 
-    comp0, tied0 = model.component(model.always_on)
+    comp0, tied0 = component(model.always_on)
     if tied0:
         return None
     everything = model.always_on
     for c in choices:
         everything |= c.devices
-    reach0, _ = model.component(everything)
+    reach0, _ = component(everything)
     visit(model.always_on, comp0, frozenset(range(n)), model.bound(reach0, comp0))
     if best[0] is None:
         return None
@@ -124,7 +137,14 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice]) -> Found | Non
     return Found(values, comp, u)
 
 
-def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto") -> Found | None:
+def worst_case(
+    model: SharingModel,
+    choices: list[Choice],
+    method: str = "auto",
+    *,
+    seed: tuple[tuple[int, ...], int] | None = None,
+    components: dict | None = None,
+) -> Found | None:
     """Find the worst counted pattern exactly.
 
     Parameters
@@ -135,6 +155,15 @@ def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto")
     method : {"auto", "brute", "bound"}
         ``"auto"``: brute force up to :data:`BRUTE_FORCE_LIMIT` allowed
         patterns, branch-and-bound beyond.
+    seed : (values, component) or None
+        A counted pattern the constraints allow (from an earlier search of
+        the same stage under other pre-conditioned nodes): branch-and-bound
+        starts with it as the best so far, so it prunes from the first
+        node.  The answer does not depend on the seed.
+    components : dict or None
+        Cache of :meth:`SharingModel.component` by conducting-device mask,
+        shared between searches of the same switch network (the component
+        does not depend on which nodes are pre-conditioned).
 
     Returns
     -------
@@ -175,4 +204,6 @@ def worst_case(model: SharingModel, choices: list[Choice], method: str = "auto")
         method = "brute" if size <= BRUTE_FORCE_LIMIT else "bound"
     if any(not c.options for c in choices):
         return None
-    return _brute(model, choices) if method == "brute" else _branch_and_bound(model, choices)
+    if method == "brute":
+        return _brute(model, choices)
+    return _branch_and_bound(model, choices, seed, components)

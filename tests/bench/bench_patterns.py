@@ -18,7 +18,11 @@ secondary-precharged node, on a sample of its patterns.
 
 Prints both times, the ratio and the largest |v_final − v(X)|, then the
 worst-case search times of the 16- and 24-leg OR-mux with and without a
-one-hot constraint on the selects.
+one-hot constraint on the selects, then the wide-OR figures of issue 12:
+64-leg footed and footless domino ORs (128 inputs), the select next to X or
+the data input next to X, with and without one-hot selects: worst case,
+count and the whole check including flags, CPU seconds (goal: under 1 s).
+``--wide-only`` skips ngspice and prints only these.
 """
 
 from __future__ import annotations
@@ -103,8 +107,13 @@ def main() -> None:
     ap.add_argument("--batch", type=int, default=200, help="transients per ngspice process")
     ap.add_argument("--step", type=float, default=0.1, help="ngspice .tran step, ns")
     ap.add_argument("--every", type=int, default=7, help="pattern sampling of the second stage")
+    ap.add_argument("--wide-only", action="store_true", help="only the wide-OR figures")
+    ap.add_argument("--legs", type=int, default=64, help="legs of the wide ORs")
     args = ap.parse_args()
     tech = make_tech()
+    if args.wide_only:
+        wide_ors(tech, args.legs)
+        return
     circuit, stage = twelve_input_stage(tech)
 
     t0 = time.perf_counter()
@@ -150,6 +159,46 @@ def main() -> None:
             print(f"{legs}-leg mux, {label:7s} selects: worst case {t_wc * 1e3:6.1f} ms; whole check "
                   f"(count, flags) {t_all * 1e3:6.1f} ms; v_final {model.to_volts(found.u_final):.4f} V, "
                   f"{res.status}, {res.counted_patterns} counted patterns, {len(res.flags)} flags")
+    wide_ors(tech, args.legs)
+
+
+def wide_or(tech, legs, footed, d_first):
+    """Legs X – T_i – m_i – B_i – rail; (T, B) = (D, S) when ``d_first``."""
+    ev, caps = [], {"X": dict(linear=6.0, nmos=(0.5 * legs, 1.5 * legs, 1.0 * legs), pmos=(0.6, 2.0, 1.0))}
+    rail = "FOOT" if footed else "VSS"
+    for i in range(legs):
+        top, bot = (f"D{i:02d}", f"S{i:02d}") if d_first else (f"S{i:02d}", f"D{i:02d}")
+        ev.append((f"MT{i:02d}", "X", top, f"m{i:02d}"))
+        ev.append((f"MB{i:02d}", f"m{i:02d}", bot, rail))
+        caps[f"m{i:02d}"] = dict(linear=0.2 + 0.05 * ((7 * i) % 11), nmos=(0.5, 1.5, 2.0))
+    return domino(tech, ev, caps, footed=footed)
+
+
+def wide_ors(tech, legs: int) -> None:
+    from analyze.search.patterns import count_counted
+
+    print(f"{legs}-leg domino ORs ({2 * legs} inputs), CPU ms")
+    print(f"{'footed':>8} {'next to X':>9} {'selects':>8} {'worst':>7} {'count':>7} {'check':>8}  result")
+    worst = 0.0
+    for footed in (True, False):
+        for d_first in (False, True):
+            for one_hot in (False, True):
+                circuit, stage = wide_or(tech, legs, footed, d_first)
+                cons = parse_constraints({"one_hot": [[f"S{i:02d}" for i in range(legs)]]}) if one_hot else None
+                model = build_model(circuit, stage, tech)
+                choices = bind_blocks(model, stage_blocks(cons, model.inputs))
+                t0 = time.process_time()
+                worst_case(model, choices)
+                t1 = time.process_time()
+                count_counted(model, choices)
+                t2 = time.process_time()
+                res = analyze_stage(circuit, stage, tech, cons)
+                t3 = time.process_time()
+                worst = max(worst, t3 - t2)
+                print(f"{str(footed):>8} {'D' if d_first else 'S':>9} {'one-hot' if one_hot else 'free':>8} "
+                      f"{(t1 - t0) * 1e3:7.1f} {(t2 - t1) * 1e3:7.1f} {(t3 - t2) * 1e3:8.1f}  {res.status}, "
+                      f"{len(res.flags)} flags{' (greedy)' if res.flag_note else ''}", flush=True)
+    print(f"slowest whole check {worst:.2f} s (goal < 1 s)")
 
 
 if __name__ == "__main__":

@@ -76,3 +76,36 @@ def test_bad_cell_reported_rest_still_run(tmp_path):
 def test_bad_jobs_value():
     rc, so, se = run("check", GDS, "--tech", TECH, "--all-cells", "--jobs", "0")
     assert rc == 2 and se.startswith("error:") and "--jobs" in se
+
+
+@pytest.mark.skipif("fork" not in __import__("multiprocessing").get_all_start_methods(),
+                    reason="start-up sharing by fork needs a platform that forks")
+@pytest.mark.parametrize("opened_in_parent", [True, False])
+def test_workers_open_the_library_once(tmp_path, monkeypatch, opened_in_parent):
+    # Source: the module's rule, counted here: every call of open_cells appends
+    # its process id to a file.  Opened in the parent, forked workers inherit it
+    # (no worker opens it); otherwise each worker opens it once, however many
+    # chunks it runs (8 chunks a worker here).
+    import analyze.cli.inputs as inputs
+    import analyze.cli.library as library
+
+    log = tmp_path / "opens.txt"
+    real = inputs.open_cells
+
+    def counting(path, tech):
+        with open(log, "a") as fh:
+            fh.write(f"{os.getpid()}\n")
+        return real(path, tech)
+
+    monkeypatch.setattr(inputs, "open_cells", counting)
+    monkeypatch.setattr(library, "_OPEN", {})
+    cells = real(GDS, __import__("extract.techfile", fromlist=["load_tech"]).load_tech(TECH)).cells
+    if opened_in_parent:
+        library.open_library(GDS, TECH)
+    outcomes = library.check_library(GDS, TECH, cells * 4, jobs=2)
+    assert len(outcomes) == 4 * len(cells) and not any(o.error for o in outcomes)
+    pids = log.read_text().split()
+    if opened_in_parent:
+        assert pids == [str(os.getpid())]
+    else:
+        assert len(pids) == len(set(pids)) <= 2 and str(os.getpid()) not in pids

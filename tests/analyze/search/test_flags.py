@@ -103,3 +103,103 @@ def test_passing_stage_has_no_flags():
     circuit, stage = domino(TECH, EV, caps)
     res = analyze_stage(circuit, stage, TECH)
     assert res.status == "pass" and res.flags == [] and res.flag_note is None
+
+
+# -- random stages: flags against brute force -----------------------------------------
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+import analyze.search.flags as flags_module  # noqa: E402
+
+
+@st.composite
+def failing_stages(draw):
+    # Legs and bridges as in test_worstcase.precharged_stacks, with a small X
+    # so that most stages fail and need flags.
+    pool = [f"I{k}" for k in range(draw(st.integers(2, 7)))]
+    devices, mids = [], []
+    for leg in range(draw(st.integers(1, 3))):
+        nodes = ["X"] + [f"m{leg}{k}" for k in range(draw(st.integers(1, 3)))] + ["FOOT"]
+        mids += nodes[1:-1]
+        for a, b in zip(nodes, nodes[1:]):
+            devices.append((f"M{len(devices):02d}", a, draw(st.sampled_from(pool)), b))
+    if len(mids) >= 2 and draw(st.booleans()):
+        a, b = draw(st.lists(st.sampled_from(mids), min_size=2, max_size=2, unique=True))
+        devices.append((f"M{len(devices):02d}", a, draw(st.sampled_from(pool)), b))
+    caps = {"X": dict(linear=draw(st.floats(0.5, 6.0)), nmos=(0.5, 1.5, 1.0))}
+    for n in mids:
+        caps[n] = dict(linear=draw(st.floats(0.0, 6.0)), nmos=(0.4, 1.2, 2.0))
+    return domino(TECH, devices, caps, polarity=draw(st.sampled_from("np")))
+
+
+def _need(res, n_type):
+    return res.threshold_v + TECH.guard if n_type else TECH.vdd - res.threshold_v + TECH.guard
+
+
+def _worst(circuit, stage, nodes):
+    """(normalised u, discharged shared nodes) of the brute-force worst case."""
+    _, ((u, _), shared) = brute_force(circuit, stage, TECH, precharged=tuple(nodes))
+    return u, shared - set(nodes) - set(stage.secondary_precharge)
+
+
+def _reference_order(circuit, stage, chosen):
+    """Best first: each step the node whose addition gives the highest
+    worst case, alphabetically first on a tie (the documented order)."""
+    applied, out = [], []
+    left = sorted(chosen)
+    while left:
+        best = max(left, key=lambda n: (_worst(circuit, stage, applied + [n])[0], [-ord(c) for c in n]))
+        left.remove(best)
+        applied.append(best)
+        out.append((best, _worst(circuit, stage, applied)[0]))
+    return out
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(failing_stages())
+def test_flags_match_brute_force(case):
+    # Source: brute force written here — every subset by increasing size, each
+    # worst case by enumerating every pattern (sharing_circuits.brute_force).
+    circuit, stage = case
+    res = analyze_stage(circuit, stage, TECH)
+    n_type = stage.polarity == "n"
+    if res.status != "fail" or res.flag_note is not None:
+        return
+    want_set, want_u = _brute_flags(circuit, stage, _need(res, n_type))
+    assert {f.node for f in res.flags} == want_set
+    got = [(f.node, f.v_final_after if n_type else TECH.vdd - f.v_final_after) for f in res.flags]
+    ref = _reference_order(circuit, stage, want_set)
+    assert [n for n, _ in got] == [n for n, _ in ref]
+    for (_, u), (_, u_ref) in zip(got, ref):
+        assert u == pytest.approx(u_ref, abs=1e-9)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(failing_stages())
+def test_greedy_fallback_matches_brute_force_greedy(case):
+    # With no search budget the flags come from the greedy fallback.  Source:
+    # the greedy rule of the docs written out here over brute-force worst
+    # cases: add, one at a time, the discharged shared node of the current
+    # worst case that raises the worst case most (alphabetically first on a tie).
+    circuit, stage = case
+    old = flags_module.SEARCH_BUDGET
+    flags_module.SEARCH_BUDGET = 0
+    try:
+        res = analyze_stage(circuit, stage, TECH)
+    finally:
+        flags_module.SEARCH_BUDGET = old
+    n_type = stage.polarity == "n"
+    if res.status != "fail" or not res.flags:
+        return
+    need = _need(res, n_type)
+    chosen = []
+    u, discharged = _worst(circuit, stage, chosen)
+    while u < need:
+        pick = max(sorted(discharged), key=lambda n: (_worst(circuit, stage, chosen + [n])[0],
+                                                      [-ord(c) for c in n]))
+        chosen.append(pick)
+        u, discharged = _worst(circuit, stage, chosen)
+    assert {f.node for f in res.flags} == set(chosen)
+    assert "greedily" in res.flag_note
+    ref = _reference_order(circuit, stage, chosen)
+    assert [f.node for f in res.flags] == [n for n, _ in ref]

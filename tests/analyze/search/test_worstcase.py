@@ -222,3 +222,81 @@ def test_no_counted_pattern():
     assert worst_case(model, choices, method="brute") is None
     assert count_counted(model, choices) == 0
     assert math.prod(len(c.options) for c in choices) == 1
+
+
+# -- counting on wide OR networks, any input names -------------------------------------
+@st.composite
+def or_stages(draw):
+    # Legs X - ... - rail of 1 to 3 devices in series, input names drawn so that
+    # the alphabetical order of the choices is arbitrary (the exponential case of
+    # the old count was "D_i over S_i": every leg's top device sorted first),
+    # inputs sometimes shared between legs, one-hot groups across legs.
+    footed = draw(st.booleans())
+    rail = "FOOT" if footed else "VSS"
+    names = draw(st.lists(st.text("ABCDSXYZ", min_size=1, max_size=2), min_size=3, max_size=13,
+                          unique=True))
+    devices, used = [], []
+    for leg in range(draw(st.integers(1, 6))):
+        nodes = ["X"] + [f"m{leg}{k}" for k in range(draw(st.integers(0, 2)))] + [rail]
+        for a, b in zip(nodes, nodes[1:]):
+            gate = draw(st.sampled_from(names))
+            used.append(gate)
+            devices.append((f"M{len(devices):02d}", a, gate, b))
+    caps = {"X": dict(linear=5.0, nmos=(0.5, 1.5, 1.0))}
+    for _, a, _, b in devices:
+        for n in (a, b):
+            if n.startswith("m"):
+                caps[n] = dict(linear=0.5, nmos=(0.4, 1.2, 2.0))
+    circuit, stage = domino(TECH, devices, caps, footed=footed)
+    used = sorted(set(used))
+    constraints = None
+    if len(used) >= 2 and draw(st.booleans()):
+        constraints = parse_constraints({"one_hot": [draw(st.lists(st.sampled_from(used), min_size=2,
+                                                                   max_size=len(used), unique=True))]})
+    return circuit, stage, constraints
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(or_stages())
+def test_count_on_or_networks_matches_brute_force(case):
+    # Source: sharing_circuits.brute_force, every pattern enumerated.
+    circuit, stage, constraints = case
+    count, _ = brute_force(circuit, stage, TECH, constraints)
+    model = build_model(circuit, stage, TECH)
+    assert count_counted(model, bind_blocks(model, stage_blocks(constraints, model.inputs))) == count
+
+
+def _wide_or(legs, footed, top_first):
+    # Legs X - T_i - m_i - B_i - rail with (T, B) = (D, S) or (S, D).
+    ev, caps = [], {"X": dict(linear=6.0, nmos=(0.5 * legs, 1.5 * legs, 1.0 * legs))}
+    rail = "FOOT" if footed else "VSS"
+    for i in range(legs):
+        top, bottom = (f"D{i:02d}", f"S{i:02d}") if top_first else (f"S{i:02d}", f"D{i:02d}")
+        ev += [(f"MT{i:02d}", "X", top, f"m{i:02d}"), (f"MB{i:02d}", f"m{i:02d}", bottom, rail)]
+        caps[f"m{i:02d}"] = dict(linear=0.2 + 0.05 * ((7 * i) % 11), nmos=(0.5, 1.5, 2.0))
+    return domino(TECH, ev, caps, footed=footed)
+
+
+@pytest.mark.parametrize("footed", [True, False])
+@pytest.mark.parametrize("d_first", [True, False])
+def test_64_leg_or_counts_by_hand(footed, d_first):
+    # Hand count as in test_mux_counts_by_hand: 3**64 free; one-hot selects
+    # 64 * 2**63.  The old count took 2**legs steps when the D inputs sorted
+    # next to X (13 s at 16 legs); this one is polynomial.
+    circuit, stage = _wide_or(64, footed, d_first)
+    model = build_model(circuit, stage, TECH)
+    start = time.perf_counter()
+    assert count_counted(model, bind_blocks(model, stage_blocks(None, model.inputs))) == 3**64
+    one_hot = parse_constraints({"one_hot": [[f"S{i:02d}" for i in range(64)]]})
+    assert count_counted(model, bind_blocks(model, stage_blocks(one_hot, model.inputs))) == 64 * 2**63
+    assert time.perf_counter() - start < 2.0
+
+
+def test_count_gives_up_past_its_budget():
+    # A 6-leg OR needs more than 3 memoised sub-counts (one per leg at least),
+    # so a budget of 3 gives None; the default budget gives the hand count 3**6.
+    circuit, stage = _wide_or(6, True, True)
+    model = build_model(circuit, stage, TECH)
+    choices = bind_blocks(model, stage_blocks(None, model.inputs))
+    assert count_counted(model, choices, budget=3) is None
+    assert count_counted(model, choices) == 3**6

@@ -1,0 +1,273 @@
+"""Device charge tables measured from the foundry's models.
+
+The lumped model counts a device's gate and overlap capacitance as fixed
+capacitors.  With the foundry's models the charge a device holds on its
+terminals depends on every terminal voltage: a conducting device's
+inversion channel holds charge that comes from (and returns to) the nodes
+it joins, a rising gate pushes charge into them, and a receiver's gate
+capacitance changes as its input falls through the threshold.
+:func:`stage_tables` measures what the charge-conservation solver needs for
+one stage, at the corner of the tech file's ``[models]``, with ngspice:
+
+``terminal(device, vg)``
+    The charge (fC) that both source/drain terminals of ``device`` hold
+    together, tied at V, with the gate at ``vg`` and the body at its rail,
+    on a grid of V from 0 to VDD, relative to the device with every
+    terminal at 0 V: intrinsic and overlap charge as the models compute it
+    (the device has no AD/AS/PD/PS, so its junctions are not in it; those
+    stay with the depletion formula of :mod:`analyze.physics.charge`).  A
+    conducting device's channel charge is in it; a device at its pass limit
+    or off has none.
+``receiver(rx)``
+    The charge on a receiving inverter's input (both gates) over its input
+    voltage, its output following (so the output's swing past the switching
+    point is in it), and that switching point from a DC sweep: the input
+    where the output equals it.
+
+Charges are measured by integrating the current that a slow ramp draws
+(the models are quasi-static, so the ramp speed does not matter; a 1 fF
+capacitor on a ramp of its own calibrates sign and integration).
+
+Notes
+-----
+One ngspice run per stage and corner: every distinct device and gate level
+gets its own pair of sources and every receiver its own inverter, on one
+transient (gate ramp 0 -> level in 1 ns, then source/drain or input ramp
+0 -> VDD in 2 ns), plus one DC sweep for the switching points.
+Results are cached on disk (``$DYNSHARE_CACHE``) by the pruned model file,
+corner, VDD and the list of what is measured, so a second check measures
+nothing.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from extract.tech import Tech
+
+__all__ = ["StageTables", "stage_tables", "GRID_STEPS"]
+
+#: Voltage grid: VDD / GRID_STEPS steps.
+GRID_STEPS = 180
+
+
+@dataclass
+class StageTables:
+    """Measured charge tables of one stage's devices.
+
+    Attributes
+    ----------
+    v : ndarray
+        The voltage grid, V.
+    terminals : dict of (str, float) to ndarray
+        ``(device name, gate level V)`` -> charge on one source/drain
+        terminal over ``v``, fC.
+    receivers : dict of str to ndarray
+        Receiver nmos name -> input charge over ``v``, fC.
+    thresholds : dict of str to float
+        Receiver nmos name -> switching point, V.
+    currents : dict of str to ndarray
+        Pass device name -> its current (µA, positive) with the gate on
+        (n-type: at VDD), the far terminal at the supply and the near one at
+        V (the mirror for pmos), over ``v``.
+    """
+
+    v: np.ndarray
+    terminals: dict = field(default_factory=dict)
+    receivers: dict = field(default_factory=dict)
+    thresholds: dict = field(default_factory=dict)
+    currents: dict = field(default_factory=dict)
+
+    def current(self, name: str):
+        """Pass current function ``I(V)`` of ``name``, µA (log-interpolated)."""
+        table = np.log(np.maximum(self.currents[name], 1e-12))
+        return lambda x: np.exp(np.interp(x, self.v, table))
+
+    def terminal(self, name: str, vg: float):
+        """Charge function ``q(V)`` of ``name``'s tied source/drain at gate ``vg``
+        (linear beyond the grid's ends)."""
+        return self._function(self.terminals[(name, round(float(vg), 6))])
+
+    def receiver(self, nmos: str):
+        """Input charge function of the receiver whose nmos is ``nmos``."""
+        return self._function(self.receivers[nmos])
+
+    def _function(self, table):
+        v = self.v
+        lo = (table[1] - table[0]) / (v[1] - v[0])
+        hi = (table[-1] - table[-2]) / (v[-1] - v[-2])
+
+        def q(x):
+            x = np.asarray(x, dtype=float)
+            inside = np.interp(x, v, table)
+            return np.where(x < v[0], table[0] + lo * (x - v[0]),
+                            np.where(x > v[-1], table[-1] + hi * (x - v[-1]), inside))
+        return q
+
+
+def _key(path: str, corner, vdd: float, items) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        h.update(hashlib.sha256(fh.read()).digest())
+    h.update(json.dumps(["ramp-integral-2", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
+    return h.hexdigest()[:24]
+
+
+def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, passes=()) -> StageTables:
+    """Measure the tables of ``stage`` (see the module text).
+
+    Parameters
+    ----------
+    circuit : Circuit
+    stage : Stage
+    tech : Tech
+        With ``[models]``; its first corner unless ``corner`` is given.
+    gate_levels : dict of str to iterable of float
+        Device name -> the gate voltages its terminal charge is wanted at.
+    corner : str, optional
+    passes : iterable of str
+        Devices whose pass current is wanted (those between the dynamic
+        node and the internal nodes).
+
+    Returns
+    -------
+    StageTables
+
+    Raises
+    ------
+    InputError
+        Anything the model library or ngspice refuses (see
+        :func:`analyze.simulator.models.prune_models`,
+        :func:`analyze.simulator.ngspice.run_deck`).
+    """
+    from analyze.simulator.instances import transistor_line
+    from analyze.simulator.models import cache_dir, prune_models
+    from analyze.simulator.ngspice import deck, run_deck
+
+    models = tech.models
+    corner = corner if corner is not None else (models.corners[0] if models.corners else None)
+    vdd = float(tech.vdd)
+    names = {"nmos": models.nmos, "pmos": models.pmos}
+    pruned = prune_models(models, corner, sorted(set(names.values())))
+    items = []
+    for name, levels in sorted(gate_levels.items()):
+        d = circuit.device(name)
+        for vg in sorted({round(float(x), 6) for x in levels}):
+            items.append(["t", name, d.type, round(d.w_um, 6), round(d.l_um, 6), vg])
+    for name in sorted(set(passes)):
+        d = circuit.device(name)
+        items.append(["i", name, d.type, round(d.w_um, 6), round(d.l_um, 6)])
+    for rx in stage.receivers:
+        dn, dp = circuit.device(rx.nmos), circuit.device(rx.pmos)
+        items.append(["r", rx.nmos, round(dn.w_um, 6), round(dn.l_um, 6), round(dp.w_um, 6), round(dp.l_um, 6)])
+    key = _key(pruned.path, corner, vdd, items)
+    cache = os.path.join(cache_dir("tables"), key + ".json")
+    grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
+    if os.path.isfile(cache):
+        with open(cache) as fh:
+            data = json.load(fh)
+    else:
+        data = _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+        tmp = cache + f".{os.getpid()}.tmp"
+        with open(tmp, "w") as fh:
+            json.dump(data, fh)
+        os.replace(tmp, cache)
+    out = StageTables(grid)
+    for k, it in enumerate(items):
+        if it[0] == "t":
+            out.terminals[(it[1], it[5])] = np.asarray(data["q"][k])
+        elif it[0] == "i":
+            out.currents[it[1]] = np.asarray(data["q"][k])
+        else:
+            out.receivers[it[1]] = np.asarray(data["q"][k])
+            out.thresholds[it[1]] = float(data["vm"][k])
+    return out
+
+
+def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+    """One transient and one DC sweep: the charges by integrating the
+    currents that quasi-static ramps draw (gate ramp 0 -> level in the first
+    ns, then the tied source/drain ramp 0 -> VDD over 2 ns); a 1 fF capacitor
+    on a ramp of its own calibrates the sign and the integration."""
+    kind = {t: pruned.kinds.get(n.lower(), "subckt") for t, n in names.items()}
+    ramp = f"PWL(0 0 1n 0 3n {vdd:.6g})"
+    lines = [f"Vdd vdd 0 {vdd:.6g}", f"Vcal cal 0 {ramp}", "Ccal cal 0 1f", "Vsw sw 0 0"]
+    currents = ["i(Vcal)"]
+    rows = []
+    for k, it in enumerate(items):
+        if it[0] == "t":
+            _, _, t, w, l, vg = it
+            body = "0" if t == "nmos" else "vdd"
+            lines.append(f"Vg{k} g{k} 0 PWL(0 0 1n {vg:.6g})")
+            lines.append(f"Vs{k} s{k} 0 {ramp}")
+            lines.append(transistor_line(f"t{k}", (f"s{k}", f"g{k}", f"s{k}", body), names[t], kind[t],
+                                         pruned.scale, w, l))
+            currents.append(f"i(Vs{k})")
+            rows.append(("t", k))
+        elif it[0] == "i":
+            _, _, t, w, l = it
+            far, gate, body = ("vdd", "vdd", "0") if t == "nmos" else ("0", "0", "vdd")
+            lines.append(f"Vc{k} c{k} sw 0")
+            lines.append(transistor_line(f"p{k}", (far, gate, f"c{k}", body), names[t], kind[t], pruned.scale,
+                                         w, l))
+            rows.append(("i", k))
+        else:
+            _, _, wn, ln, wp, lp = it
+            lines.append(f"Vi{k} i{k} 0 {ramp}")
+            for tag, node in (("", f"i{k}"), ("dc", "sw")):
+                lines.append(transistor_line(f"rn{tag}{k}", (f"o{tag}{k}", node, "0", "0"), names["nmos"],
+                                             kind["nmos"], pruned.scale, wn, ln))
+                lines.append(transistor_line(f"rp{tag}{k}", (f"o{tag}{k}", node, "vdd", "vdd"), names["pmos"],
+                                             kind["pmos"], pruned.scale, wp, lp))
+            currents.append(f"i(Vi{k})")
+            rows.append(("r", k))
+    commands = [f"tran 5p 3n", "wrdata charges.txt " + " ".join(currents)]
+    dc_vectors = [f"v(odc{k})" if kind_ == "r" else f"i(Vc{k})" for kind_, k in rows if kind_ in "ri"]
+    if dc_vectors:
+        commands += [f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g}", "wrdata transfer.txt " + " ".join(dc_vectors)]
+    options = [".temp 27"]
+    if pruned.scale is not None:
+        options.append(f".option scale={pruned.scale:.6g}")
+    text = deck(f"dynshare: device charge tables at corner {corner}", pruned.path, lines, commands, options)
+    res = run_deck(text, f"device charge tables at corner {corner}",
+                   tables=["charges.txt"] + (["transfer.txt"] if dc_vectors else []))
+    table = res.tables["charges.txt"]
+    t = table[:, 0]
+    # charge delivered into the circuit by each source: minus the integral
+    # of its branch current (SPICE's current flows from + through the source)
+    q = -np.concatenate([np.zeros((1, table.shape[1] - 1)),
+                         np.cumsum(0.5 * (table[1:, 1:] + table[:-1, 1:]) * np.diff(t)[:, None], axis=0)]) * 1e15
+    grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
+    times = 1e-9 + 2e-9 * grid / vdd
+    calib = np.interp(times, t, q[:, 0])
+    scale = 1.0 / np.polyfit(grid, calib, 1)[0] if np.ptp(calib) > 0 else 1.0  # 1 fF -> 1 fC/V
+    out_q, out_vm = {}, {}
+    transfer = res.tables.get("transfer.txt")
+    col_dc = 1
+    j = 0
+    for kind_, k in rows:
+        if kind_ == "i":
+            v = transfer[:, 0]
+            out_q[k] = np.interp(grid, v, np.abs(transfer[:, col_dc]) * 1e6).tolist()
+            col_dc += 1
+            continue
+        j += 1
+        out_q[k] = (np.interp(times, t, q[:, j]) * scale).tolist()
+        if kind_ == "r":
+            v, vout = transfer[:, 0], transfer[:, col_dc]
+            col_dc += 1
+            diff = vout - v
+            idx = np.nonzero(np.diff(np.sign(diff)))[0]
+            if len(idx):
+                i = int(idx[0])
+                out_vm[k] = float(v[i] - diff[i] * (v[i + 1] - v[i]) / (diff[i + 1] - diff[i]))
+            else:
+                out_vm[k] = vdd / 2
+    n = len(items)
+    return {"q": [out_q[k] for k in range(n)], "vm": [out_vm.get(k, 0.0) for k in range(n)],
+            "calibration": float(scale)}

@@ -167,7 +167,10 @@ def _pwl(points: list[tuple[float, float]]) -> str:
 
 
 def _levels_wave(on: float, pre: float, ev: float) -> str:
-    return _pwl([(0.0, on), (RESET_NS, on), (RESET_NS + EDGE_NS, pre), (EVAL_NS, pre), (EVAL_NS + EDGE_NS, ev)])
+    # inputs change once the clock edge is over: an input from another
+    # dynamic stage cannot move before the clock that starts its evaluation
+    t = EVAL_NS + EDGE_NS
+    return _pwl([(0.0, on), (RESET_NS, on), (RESET_NS + EDGE_NS, pre), (t, pre), (t + EDGE_NS, ev)])
 
 
 def stage_deck(circuit: Circuit, stage: Stage, tech: Tech, runs: list[Run], *, include: str | None,

@@ -12,8 +12,9 @@ Sources of the expected values, named beside each check:
   every input on (all nodes discharge), 2 ns of precharge with the inputs at
   their precharge levels, the internal nodes held at the rail by an ideal
   switch until 0.2 ns before evaluation (the README's "discharged in an
-  earlier cycle"), then evaluation from 3 ns with 50 ps edges, the extreme of
-  V(X) read between 3 and 4 ns;
+  earlier cycle"), then evaluation: the clock edge from 3 ns, the inputs'
+  edges right after it (from 3.05 ns), 50 ps each; the extreme of V(X) read
+  between 3 and 4 ns;
 * the arrival cases and verdict rule of the README ("Simulating with the
   foundry models").
 
@@ -141,7 +142,7 @@ def _reference(src, name, levels, polarity="n", corner="tt", keeper=True):
     lines.append(f"V{clk} {clk} 0 PWL(0 {ev} 1n {ev} 1.05n {pre} 3n {pre} 3.05n {ev})")
     on = 1.8 if polarity == "n" else 0.0
     for net, (p, e) in levels.items():
-        lines.append(f"V{net} {net} 0 PWL(0 {on} 1n {on} 1.05n {p} 3n {p} 3.05n {e})")
+        lines.append(f"V{net} {net} 0 PWL(0 {on} 1n {on} 1.05n {p} 3.05n {p} 3.1n {e})")
     for dn, d, g, s, b, dev, w, l, ad, pd in devices:
         if not keeper and dn == "KEEP":
             g = "VDD"

@@ -45,7 +45,7 @@ from analyze.physics.charge import node_charge
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
-__all__ = ["GateLevels", "gate_levels", "final_voltage_with_devices", "table_devices"]
+__all__ = ["GateLevels", "gate_levels", "final_voltage_with_devices", "table_devices", "clock_setup"]
 
 
 @dataclass(frozen=True)
@@ -103,6 +103,26 @@ def gate_levels(circuit, stage, tech, inputs: dict, late: set) -> GateLevels:
         else:
             before[d.name] = after[d.name] = 0.0 if d.type == "nmos" else vdd
     return GateLevels(before, after)
+
+
+def clock_setup(circuit, stage, tech) -> dict:
+    """What the clock-edge measurement of
+    :func:`analyze.physics.device_tables.stage_tables` needs: the devices on
+    the dynamic node (clocked ones, receivers, the rest held off) and the
+    zero-bias capacitance of everything else on it."""
+    tdevs = table_devices(circuit, stage)
+    out = []
+    for d in tdevs:
+        if stage.dynamic_node not in (d.drain, d.source):
+            continue
+        role = circuit.nets[d.gate].role if d.gate in circuit.nets else tech.role_of(d.gate)
+        out.append((d.name, "clocked" if (d.gate == stage.clock or role == "clock") and d.name not in stage.evaluation
+                    else "off"))
+    for j, rx in enumerate(stage.receivers):
+        if circuit.device(rx.nmos).gate == stage.dynamic_node:
+            out += [(rx.nmos, f"receiver:{j}"), (rx.pmos, f"receiver:{j}")]
+    rest = _lumped_rest(circuit.nets.get(stage.dynamic_node), circuit, stage, tech, tdevs, stage.receivers)
+    return {"devices": out, "cap_ff": rest.zero_bias_total}
 
 
 def _lumped_rest(net: Net | None, circuit, stage, tech, table_devs, receivers):
@@ -166,22 +186,39 @@ def final_voltage_with_devices(circuit, stage, tech, tables, group: list[str], l
     members = set(group)
     rests = {n: _lumped_rest(circuit.nets.get(n), circuit, stage, tech, tdevs, stage.receivers) for n in group}
     terms = {n: [] for n in group}
+    rx = [tables.receiver(r.nmos) for r in stage.receivers if circuit.device(r.nmos).gate == stage.dynamic_node]
+    clocked = {name for name, role in clock_setup(circuit, stage, tech)["devices"] if role == "clocked"}
+    before = dict(levels.before)
+    if tables.clock_v is not None:
+        # the clock edge is measured as a whole: the clocked devices count
+        # at their evaluation level, their coupling and channel charge come
+        # in as the charge that moved the lone node to clock_v
+        before.update({name: levels.after[name] for name in clocked})
+    term_fns = {}
+
+    def fn(name, vg):
+        key = (name, round(float(vg), 6))
+        if key not in term_fns:
+            term_fns[key] = tables.terminal(name, vg)
+        return term_fns[key]
+
     for d in tdevs:
         for t in (d.drain, d.source):
             if t in members:
-                terms[t].append((tables.terminal(d.name, levels.before[d.name]),
-                                 tables.terminal(d.name, levels.after[d.name])))
-    rx = [tables.receiver(r.nmos) for r in stage.receivers if circuit.device(r.nmos).gate == stage.dynamic_node]
+                terms[t].append((d.name, fn(d.name, before[d.name]), fn(d.name, levels.after[d.name])))
 
     def q_node(n, v, which):
         q = float(rests[n].charge(float(v)))
-        for before, after in terms[n]:
-            q += 0.5 * float((before if which == 0 else after)(v))
+        for _, b, a in terms[n]:
+            q += 0.5 * float((b if which == 0 else a)(v))
         if n == stage.dynamic_node:
             q += sum(float(f(v)) for f in rx)
         return q
 
     total = sum(q_node(n, start[n], 0) for n in group)
+    if tables.clock_v is not None:
+        x = stage.dynamic_node
+        total += q_node(x, tables.clock_v, 0) - q_node(x, start[x], 0)
 
     def f_equal(v):
         return sum(q_node(n, v, 1) for n in group) - total
@@ -196,89 +233,43 @@ def final_voltage_with_devices(circuit, stage, tech, tables, group: list[str], l
     v_lim = v_lim if n_type else vdd - v_lim
     if (n_type and v_eq <= v_lim) or (not n_type and v_eq >= v_lim):
         return v_eq
-    v_end = v_lim
+    x = stage.dynamic_node
+
+    def v_x(v_int):
+        rest = total - sum(q_node(n, v_int, 1) for n in internal)
+        return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
+
+    def v_x_near(v_int):
+        """The dynamic node's voltage for the pass current (VDD where the
+        lone-node bracket does not hold, early in the fast phase)."""
+        try:
+            return v_x(v_int)
+        except ValueError:
+            return vdd if n_type else 0.0
+
     currents = [tables.current(p) for p in passes if p in tables.currents]
+    v_end = v_lim
     if currents:
-        v_end = _creep(lambda v: sum(q_node(n, v, 1) for n in internal), currents, v_eq,
-                       float(start[internal[0]]), tech.evaluation_ns, n_type)
-    rest = total - sum(q_node(n, v_end, 1) for n in internal)
-    import os
-    if os.environ.get('DYNSHARE_DEBUG'): print('v_eq', v_eq, 'v_lim', v_lim, 'v_end', v_end)
-    return brentq(lambda v: q_node(stage.dynamic_node, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
+        # the fast phase up to a few hundred mV short of the pass limit takes
+        # no time worth counting; integrate from there
+        v_from = v_lim - 0.3 if n_type else v_lim + 0.3
+        v_end = _creep(lambda v: sum(q_node(n, v, 1) for n in internal), currents, v_x_near, v_eq,
+                       v_from, tech.evaluation_ns)
+    return v_x(v_end)
 
 
-def _creep(q_internal, currents, v_eq: float, v0: float, t_ns: float, n_type: bool) -> float:
+def _creep(q_internal, currents, v_x, v_eq: float, v0: float, t_ns: float) -> float:
     """Where the internal nodes are after ``t_ns``, charged through the pass
-    devices: t = ∫ C(V)/I(V) dV from their start, C = dQ/dV of the
-    internal nodes, I the sum of the pass currents (µA); never past the
-    equalised voltage.  fC / µA = ns."""
-    grid = np.linspace(v0, v_eq, 400)
+    devices: t = ∫ C(V)/I(V, Vx(V)) dV from their start, C = dQ/dV of the
+    internal nodes, I the sum of the pass currents (µA) with the dynamic
+    node where conservation puts it; never past the equalised voltage.
+    fC / µA = 1 ns."""
+    grid = np.linspace(v0, v_eq, 160)
     q = np.array([q_internal(v) for v in grid])
-    i = np.sum([f(grid if n_type else grid) for f in currents], axis=0)
+    i = np.array([sum(f(v, v_x(v)) for f in currents) for v in grid])
     dq = np.abs(np.diff(q))
     i_mid = 0.5 * (i[1:] + i[:-1])
-    t = np.concatenate([[0.0], np.cumsum(dq / np.maximum(i_mid, 1e-12) * 1e-3)])  # fC/µA = 1e-9 s -> ns: x1e-3? see below
-    # fC / µA = 1e-15 C / 1e-6 A = 1e-9 s = 1 ns
-    t = t * 1e3
+    t = np.concatenate([[0.0], np.cumsum(dq / np.maximum(i_mid, 1e-15))])
     if t[-1] <= t_ns:
         return v_eq
     return float(np.interp(t_ns, t, grid))
-
-
-def precharge_voltages(circuit, stage, tech, tables, levels: GateLevels) -> dict:
-    """Each internal node's voltage at the end of precharge.
-
-    The earlier evaluation left every node at the rail with every input on
-    (``levels.before``); as the inputs fall to their precharge levels
-    (``levels.after``) the devices that turn off leave their channel charge
-    on the nodes, which float, so an internal node of an n-type stage ends
-    below 0 V (p-type: above VDD).  Internal nodes joined by devices still
-    on during precharge share one voltage; charge is conserved per such
-    group.
-
-    Returns
-    -------
-    dict of str to float
-        Internal node -> voltage; secondary precharged nodes are at the
-        supply (n-type VDD, p-type 0).
-    """
-    vdd = float(tech.vdd)
-    n_type = stage.polarity == "n"
-    rail = 0.0 if n_type else vdd
-    tdevs = table_devices(circuit, stage)
-    internal = [n for n in stage.internal_nodes if n not in stage.secondary_precharge]
-    out = {n: (vdd if n_type else 0.0) for n in stage.secondary_precharge}
-    on_level = {"nmos": lambda g: g > vdd / 2, "pmos": lambda g: g < vdd / 2}
-    parent = {n: n for n in internal}
-
-    def find(n):
-        while parent[n] != n:
-            n = parent[n]
-        return n
-
-    for d in tdevs:
-        if d.drain in parent and d.source in parent and on_level[d.type](levels.after.get(d.name, rail)):
-            parent[find(d.drain)] = find(d.source)
-    groups: dict[str, list] = {}
-    for n in internal:
-        groups.setdefault(find(n), []).append(n)
-    rests = {n: _lumped_rest(circuit.nets.get(n), circuit, stage, tech, tdevs, stage.receivers) for n in internal}
-    for members in groups.values():
-        mset = set(members)
-        terms = []
-        for d in tdevs:
-            for t in (d.drain, d.source):
-                if t in mset:
-                    terms.append((tables.terminal(d.name, levels.before.get(d.name, rail)),
-                                  tables.terminal(d.name, levels.after.get(d.name, rail))))
-        total = sum(float(rests[n].charge(rail)) for n in members) + sum(0.5 * float(b(rail)) for b, _ in terms)
-
-        def f(v):
-            return (sum(float(rests[n].charge(float(v))) for n in members)
-                    + sum(0.5 * float(a(v)) for _, a in terms) - total)
-
-        pbs = [float(x) for n in members for x in rests[n].pb] or [1.0]
-        margin = 0.9 * min(pbs)
-        v0 = brentq(f, -margin, vdd + margin, xtol=1e-7)
-        out.update({n: v0 for n in members})
-    return out

@@ -54,6 +54,8 @@ __all__ = ["StageTables", "stage_tables", "GRID_STEPS"]
 
 #: Voltage grid: VDD / GRID_STEPS steps.
 GRID_STEPS = 180
+#: Far-terminal grid of the current tables: VDD / FAR_STEPS steps.
+FAR_STEPS = 18
 
 
 @dataclass
@@ -73,8 +75,14 @@ class StageTables:
         Receiver nmos name -> switching point, V.
     currents : dict of str to ndarray
         Pass device name -> its current (µA, positive) with the gate on
-        (n-type: at VDD), the far terminal at the supply and the near one at
-        V (the mirror for pmos), over ``v``.
+        (nmos at VDD, pmos at 0), rows: the far terminal (towards the
+        dynamic node) at ``v_far``, columns: the near one at ``v``.
+    v_far : ndarray
+        Far-terminal voltages of the current tables, V.
+    clock_v : float or None
+        The dynamic node's voltage at the end of the evaluation window when
+        nothing shares it: where the clock edge alone (coupling and the
+        precharge devices' channel charge) leaves it.
     """
 
     v: np.ndarray
@@ -82,11 +90,18 @@ class StageTables:
     receivers: dict = field(default_factory=dict)
     thresholds: dict = field(default_factory=dict)
     currents: dict = field(default_factory=dict)
+    v_far: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    clock_v: float | None = None
 
     def current(self, name: str):
-        """Pass current function ``I(V)`` of ``name``, µA (log-interpolated)."""
-        table = np.log(np.maximum(self.currents[name], 1e-12))
-        return lambda x: np.exp(np.interp(x, self.v, table))
+        """Pass current ``I(v_near, v_far)`` of ``name``, µA (log-interpolated
+        in the near voltage, linear in the far one)."""
+        logs = np.log(np.maximum(self.currents[name], 1e-15))
+
+        def i(v_near, v_far):
+            rows = np.array([np.interp(v_near, self.v, row) for row in logs])
+            return float(np.exp(np.interp(v_far, self.v_far, rows)))
+        return i
 
     def terminal(self, name: str, vg: float):
         """Charge function ``q(V)`` of ``name``'s tied source/drain at gate ``vg``
@@ -114,11 +129,11 @@ def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         h.update(hashlib.sha256(fh.read()).digest())
-    h.update(json.dumps(["ramp-integral-2", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
+    h.update(json.dumps(["ramp-integral-3", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 
-def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, passes=()) -> StageTables:
+def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, passes=(), clock=None) -> StageTables:
     """Measure the tables of ``stage`` (see the module text).
 
     Parameters
@@ -133,6 +148,12 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
     passes : iterable of str
         Devices whose pass current is wanted (those between the dynamic
         node and the internal nodes).
+    clock : dict, optional
+        The dynamic node's surroundings for the clock-edge measurement:
+        ``{"devices": [(name, role)], "cap_ff": float}`` with role
+        ``"clocked"``, ``"off"`` or ``"receiver:J"`` (J numbers the
+        inverter; see
+        :func:`analyze.physics.device_charge.clock_setup`).
 
     Returns
     -------
@@ -165,7 +186,14 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
     for rx in stage.receivers:
         dn, dp = circuit.device(rx.nmos), circuit.device(rx.pmos)
         items.append(["r", rx.nmos, round(dn.w_um, 6), round(dn.l_um, 6), round(dp.w_um, 6), round(dp.l_um, 6)])
-    key = _key(pruned.path, corner, vdd, items)
+    clock_items = None
+    if clock is not None:
+        clock_items = [[name, role, circuit.device(name).type, round(circuit.device(name).w_um, 6),
+                        round(circuit.device(name).l_um, 6), _terminal_role(circuit, tech, stage, name)]
+                       for name, role in clock["devices"]]
+        clock_items = [clock_items, round(float(clock["cap_ff"]), 6), round(float(tech.evaluation_ns), 6),
+                       stage.polarity]
+    key = _key(pruned.path, corner, vdd, [items, clock_items])
     cache = os.path.join(cache_dir("tables"), key + ".json")
     grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
     if os.path.isfile(cache):
@@ -173,16 +201,21 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
             data = json.load(fh)
     else:
         data = _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+        data["i"] = _measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+        data["clock_v"] = (None if clock_items is None else
+                           _measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck))
         tmp = cache + f".{os.getpid()}.tmp"
         with open(tmp, "w") as fh:
             json.dump(data, fh)
         os.replace(tmp, cache)
     out = StageTables(grid)
+    out.v_far = np.linspace(0.0, vdd, FAR_STEPS + 1)
+    out.clock_v = data.get("clock_v")
     for k, it in enumerate(items):
         if it[0] == "t":
             out.terminals[(it[1], it[5])] = np.asarray(data["q"][k])
         elif it[0] == "i":
-            out.currents[it[1]] = np.asarray(data["q"][k])
+            out.currents[it[1]] = np.asarray(data["i"][str(k)])
         else:
             out.receivers[it[1]] = np.asarray(data["q"][k])
             out.thresholds[it[1]] = float(data["vm"][k])
@@ -210,12 +243,7 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
             currents.append(f"i(Vs{k})")
             rows.append(("t", k))
         elif it[0] == "i":
-            _, _, t, w, l = it
-            far, gate, body = ("vdd", "vdd", "0") if t == "nmos" else ("0", "0", "vdd")
-            lines.append(f"Vc{k} c{k} sw 0")
-            lines.append(transistor_line(f"p{k}", (far, gate, f"c{k}", body), names[t], kind[t], pruned.scale,
-                                         w, l))
-            rows.append(("i", k))
+            continue
         else:
             _, _, wn, ln, wp, lp = it
             lines.append(f"Vi{k} i{k} 0 {ramp}")
@@ -226,8 +254,8 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
                                              kind["pmos"], pruned.scale, wp, lp))
             currents.append(f"i(Vi{k})")
             rows.append(("r", k))
-    commands = [f"tran 5p 3n", "wrdata charges.txt " + " ".join(currents)]
-    dc_vectors = [f"v(odc{k})" if kind_ == "r" else f"i(Vc{k})" for kind_, k in rows if kind_ in "ri"]
+    commands = ["tran 5p 3n", "wrdata charges.txt " + " ".join(currents)]
+    dc_vectors = [f"v(odc{k})" for kind_, k in rows if kind_ == "r"]
     if dc_vectors:
         commands += [f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g}", "wrdata transfer.txt " + " ".join(dc_vectors)]
     options = [".temp 27"]
@@ -249,14 +277,7 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
     out_q, out_vm = {}, {}
     transfer = res.tables.get("transfer.txt")
     col_dc = 1
-    j = 0
-    for kind_, k in rows:
-        if kind_ == "i":
-            v = transfer[:, 0]
-            out_q[k] = np.interp(grid, v, np.abs(transfer[:, col_dc]) * 1e6).tolist()
-            col_dc += 1
-            continue
-        j += 1
+    for j, (kind_, k) in enumerate(rows, start=1):
         out_q[k] = (np.interp(times, t, q[:, j]) * scale).tolist()
         if kind_ == "r":
             v, vout = transfer[:, 0], transfer[:, col_dc]
@@ -269,5 +290,77 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
             else:
                 out_vm[k] = vdd / 2
     n = len(items)
-    return {"q": [out_q[k] for k in range(n)], "vm": [out_vm.get(k, 0.0) for k in range(n)],
+    return {"q": [out_q.get(k, []) for k in range(n)], "vm": [out_vm.get(k, 0.0) for k in range(n)],
             "calibration": float(scale)}
+
+
+def _terminal_role(circuit, tech, stage, name):
+    """Where the far channel terminal of a device on the dynamic node goes in
+    the clock-edge deck: ``"vdd"``, ``"0"`` or ``"rail"`` (the stage's rail)."""
+    d = circuit.device(name)
+    other = d.source if d.drain == stage.dynamic_node else d.drain
+    role = circuit.nets[other].role if other in circuit.nets else tech.role_of(other)
+    if role == "power":
+        return "vdd"
+    if role == "ground":
+        return "0"
+    return "rail"
+
+
+def _measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+    """Pass currents: a nested DC sweep, near terminal (inner) and far terminal (outer)."""
+    kind = {t: pruned.kinds.get(n.lower(), "subckt") for t, n in names.items()}
+    lines = [f"Vdd vdd 0 {vdd:.6g}", "Vsw sw 0 0", "Vfar far 0 0"]  # noqa: F541
+    rows = []
+    for k, it in enumerate(items):
+        if it[0] != "i":
+            continue
+        _, _, t, w, l = it
+        gate, body = ("vdd", "0") if t == "nmos" else ("0", "vdd")
+        lines.append(f"Vc{k} c{k} sw 0")
+        lines.append(transistor_line(f"p{k}", ("far", gate, f"c{k}", body), names[t], kind[t], pruned.scale, w, l))
+        rows.append(k)
+    if not rows:
+        return {}
+    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    commands = [f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g} Vfar 0 {vdd:.6g} {vdd / FAR_STEPS:.6g}",
+                "wrdata currents.txt " + " ".join(f"i(Vc{k})" for k in rows)]
+    text = deck(f"dynshare: pass currents at corner {corner}", pruned.path, lines, commands, options)
+    res = run_deck(text, f"pass currents at corner {corner}", tables=["currents.txt"])
+    table = res.tables["currents.txt"]
+    n_near = GRID_STEPS + 1
+    out = {}
+    for j, k in enumerate(rows, start=1):
+        col = np.abs(table[:, j]) * 1e6
+        out[str(k)] = col[: n_near * (FAR_STEPS + 1)].reshape(FAR_STEPS + 1, n_near).tolist()
+    return out
+
+
+def _measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> float:
+    """The dynamic node after the clock edge with nothing sharing it: its
+    devices (clocked ones with the edge, the others off), its receivers and
+    a capacitor for the rest of its charge."""
+    devices, cap, window, polarity = clock_items
+    kind = {t: pruned.kinds.get(n.lower(), "subckt") for t, n in names.items()}
+    n_type = polarity == "n"
+    pre, ev = (0.0, vdd) if n_type else (vdd, 0.0)
+    rail = "0" if n_type else "vdd"
+    lines = [f"Vdd vdd 0 {vdd:.6g}", f"Vclk clk 0 PWL(0 {pre:.6g} 0.5n {pre:.6g} 0.55n {ev:.6g})",
+             f"Cx x 0 {max(cap, 0.0):.6g}f"]
+    for k, (name, role, t, w, l, far) in enumerate(devices):
+        body = "0" if t == "nmos" else "vdd"
+        far_node = rail if far == "rail" else far
+        if role == "clocked":
+            gate = "clk"
+        elif role.startswith("receiver"):
+            out = "o" + role.split(":")[1]
+            lines.append(transistor_line(f"rx{k}", (out, "x", body, body), names[t], kind[t], pruned.scale, w, l))
+            continue
+        else:
+            gate = "0" if t == "nmos" else "vdd"
+        lines.append(transistor_line(f"d{k}", ("x", gate, far_node, body), names[t], kind[t], pruned.scale, w, l))
+    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    commands = [f"tran 5p {0.51 + window:.6g}n", f"meas tran vend find v(x) at={0.5 + window:.6g}n", "print vend"]
+    text = deck(f"dynshare: clock edge at corner {corner}", pruned.path, lines, commands, options)
+    return run_deck(text, f"clock edge at corner {corner}", expect=["vend"]).scalar("vend")
+

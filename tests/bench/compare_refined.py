@@ -1,5 +1,5 @@
 import sys, time
-sys.path[:0]=['/work/main','/work/main/tests/helpers','/work/main/tests/bench']
+sys.path[:0]=['/work/wt-issue11','/work/wt-issue11/tests/helpers','/work/wt-issue11/tests/bench']
 import bench_simulate as b
 from extract.techfile import load_tech
 from extract.netlist.reader import read_schematic
@@ -7,7 +7,7 @@ from analyze.search.analysis import analyse_circuit, evaluate_pattern
 from analyze.simulate.run import simulate_stage
 from analyze.simulate.cases import input_levels, top_inputs, low_in_precharge
 from analyze.physics.device_tables import stage_tables
-from analyze.physics.device_charge import gate_levels, final_voltage_with_devices, table_devices, precharge_voltages, GateLevels
+from analyze.physics.device_charge import gate_levels, final_voltage_with_devices, table_devices, clock_setup
 corner = sys.argv[1]
 tech = load_tech(f'/tmp/fit/fit.{corner}.toml')
 for name,(ports,devs,caps) in b.stages().items():
@@ -20,7 +20,7 @@ for name,(ports,devs,caps) in b.stages().items():
     for d in table_devices(c,st):
         lv.setdefault(d.name,set()).update({0.0,vdd, vdd-abs(tech.mos[d.type].vt0), abs(tech.mos[d.type].vt0)})
     tops=[d.name for d in table_devices(c,st) if st.dynamic_node in (d.drain,d.source) and d.name in st.evaluation]
-    tb=stage_tables(c,st,tech,lv,corner,passes=tops)
+    tb=stage_tables(c,st,tech,lv,corner,passes=tops,clock=clock_setup(c,st,tech))
     vm=max(tb.thresholds.values()) if st.polarity=='n' else min(tb.thresholds.values())
     for s in sims:
         wc=evaluate_pattern(c,st,tech,s.inputs)

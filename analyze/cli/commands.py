@@ -67,6 +67,11 @@ def run_extract(args) -> int:
 
 
 def run_check(args) -> int:
+    if args.scheduler is not None and not args.all_cells:
+        from extract.errors import InputError
+
+        raise InputError(args.scheduler, "--scheduler distributes the cells of a library; use it with "
+                         "--all-cells (a single cell runs here)", "--scheduler")
     if args.all_cells:
         from analyze.cli.library import run_library
 

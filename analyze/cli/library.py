@@ -6,7 +6,9 @@ placed many times is still one cell).  Cells are independent, so with
 the platform can fork, the workers inherit the parent's imports and its
 opened library and tech file; elsewhere each worker opens them once, in
 its initializer.  Cells go out in small chunks, so the workers finish
-together.  A cell that cannot be analysed is reported and
+together.  With ``--scheduler ADDRESS`` the same chunks go to the workers
+of a Dask distributed cluster instead (:mod:`analyze.cli.cluster`); the
+report is the same.  A cell that cannot be analysed is reported and
 the others still run.
 
 Exit status: 2 when some cell could not be analysed (one ``error:`` line
@@ -31,11 +33,13 @@ _OPEN: dict = {}
 
 def open_library(path: str, tech_path: str, constraints_path: str | None = None):
     """``(source, tech, constraints)`` of a library, opened once per
-    process (kept for :func:`check_cell_in_library`)."""
+    process (kept for :func:`check_cell_in_library`).  The files' size and
+    modification time are part of the key, so that a long-lived process (a
+    cluster worker) reads a library again when it has been rewritten."""
     from analyze.cli.inputs import open_cells
     from extract.techfile import load_tech
 
-    key = (path, tech_path, constraints_path)
+    key = (path, tech_path, constraints_path, _stamp(path), _stamp(tech_path), _stamp(constraints_path))
     if key not in _OPEN:
         constraints = None
         if constraints_path:
@@ -46,6 +50,14 @@ def open_library(path: str, tech_path: str, constraints_path: str | None = None)
         tech = load_tech(tech_path)
         _OPEN[key] = (open_cells(path, tech), tech, constraints)
     return _OPEN[key]
+
+
+def _stamp(path):
+    try:
+        st = os.stat(path)
+    except (OSError, TypeError):
+        return None  # no file (reported by the reader)
+    return st.st_size, st.st_mtime_ns
 
 
 def _worker_start(path, tech_path, constraints_path) -> None:
@@ -119,13 +131,27 @@ def _check_chunk(path, tech_path, cells, constraints_path):
     return [check_cell_in_library(path, tech_path, c, constraints_path) for c in cells]
 
 
-def check_library(path, tech_path, cells, jobs=1, constraints_path=None, progress=None) -> list[CellOutcome]:
+def check_library(path, tech_path, cells, jobs=1, constraints_path=None, progress=None,
+                  scheduler=None) -> list[CellOutcome]:
     """Check ``cells`` of ``path``; outcomes sorted by cell name.
 
     ``progress`` is called with each finished outcome (for a progress bar).
+    With ``scheduler`` (an address), the cells run on that Dask distributed
+    cluster (:mod:`analyze.cli.cluster`) and ``jobs`` is not used.
     """
     outcomes = []
-    if jobs <= 1 or len(cells) <= 1:
+    if scheduler:
+        from analyze.cli.cluster import cluster_map
+
+        def chunking(cells, workers):
+            return _chunks(path, tech_path, cells, workers, constraints_path)
+
+        files = (path, tech_path, constraints_path)
+        for out in cluster_map(scheduler, check_cell_in_library, files, cells, chunking):
+            outcomes.append(out)
+            if progress:
+                progress(out)
+    elif jobs <= 1 or len(cells) <= 1:
         for cell in cells:
             out = check_cell_in_library(path, tech_path, cell, constraints_path)
             outcomes.append(out)
@@ -190,6 +216,10 @@ def run_library(args) -> int:
         raise InputError(args.layout, "--simulate runs on one cell at a time; name it with --cell", "--simulate")
     if args.jobs is not None and args.jobs < 1:
         raise InputError(args.layout, f"--jobs must be at least 1, got {args.jobs}", "--jobs")
+    scheduler = getattr(args, "scheduler", None)
+    if scheduler is not None and args.jobs is not None:
+        raise InputError(scheduler, "--jobs and --scheduler exclude each other (the cluster's workers are "
+                         "the parallel processes)", "--scheduler")
     check_outputs({"--json": args.json}, [args.layout, args.tech, args.constraints])
     # opened once here; forked workers inherit it (see the module text)
     source, tech, constraints = open_library(args.layout, args.tech, args.constraints)
@@ -204,7 +234,7 @@ def run_library(args) -> int:
                   console=console, transient=True, disable=not console.is_terminal) as bar:
         task = bar.add_task("cells", total=len(cells))
         outcomes = check_library(args.layout, args.tech, cells, jobs, args.constraints,
-                                 progress=lambda _o: bar.advance(task))
+                                 progress=lambda _o: bar.advance(task), scheduler=scheduler)
     report = header(os.path.basename(args.layout), tech.vdd)
     report["library"] = args.layout
     report["cells"] = [

@@ -60,7 +60,12 @@ def build_parser() -> argparse.ArgumentParser:
                    help="also simulate the worst cases with ngspice and the tech file's [models]")
     p.add_argument("--corner", action="append", metavar="C",
                    help="with --simulate: this corner of [models] corners (repeatable; default all)")
-    p.add_argument("--jobs", type=int, default=1, metavar="N", help="with --all-cells: cells in N parallel processes")
+    p.add_argument("--jobs", type=int, metavar="N",
+                   help="with --all-cells: cells in N parallel processes (default 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="with --all-cells: run the cells on the Dask distributed scheduler at ADDRESS "
+                        "(e.g. tcp://host:8786) instead of local processes; the input files must be "
+                        "visible to the workers under the same path. The JSON report is the same either way.")
 
     p = sub.add_parser("compare", help="pre-layout (schematic) against post-layout (layout)")
     _layout_args(p)

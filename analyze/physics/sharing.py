@@ -58,6 +58,10 @@ class WorstCase:
         ``|start − v_final|``, V.
     regime : str
         ``"a"``, ``"b"`` or ``"c"`` (see :mod:`analyze.physics.redistribution`).
+    case : str or None
+        The input-arrival case (``"rising"``/``"settled"``) when the final
+        voltage came from the foundry models' device charges
+        (:mod:`analyze.physics.device_charge`); None for the lumped model.
     """
 
     inputs: dict[str, int]
@@ -66,6 +70,7 @@ class WorstCase:
     v_final_linear: float
     droop_v: float
     regime: str = ""
+    case: str | None = None
 
 
 @dataclass(eq=False)

@@ -106,6 +106,7 @@ def worst_case_json(wc) -> dict | None:
         "v_final": rounded(wc.v_final),
         "v_final_linear": rounded(wc.v_final_linear),
         "droop_v": rounded(wc.droop_v),
+        **({"case": wc.case} if getattr(wc, "case", None) else {}),
     }
 
 
@@ -160,6 +161,8 @@ def stage_json(result, circuit: Circuit) -> dict:
         "worst_case": worst_case_json(result.worst_case),
         "flags": flags_json(result.flags),
         "flag_note": result.flag_note,
+        "model": result.physics,
+        **({"model_note": result.physics_note} if result.physics_note else {}),
         **({"analysis_status": result.analysis_status, "simulation": simulation_json(result.simulation),
             "simulation_notes": list(result.simulation_notes)}
            if result.simulation else {}),

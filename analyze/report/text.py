@@ -71,6 +71,7 @@ def stage_block(result, circuit: Circuit, tech) -> str:
         rx = "none found (threshold taken as VDD/2)"
     out.append(f"  receiver      {rx}")
     out.append(f"  threshold     {result.threshold_v:.3f} V (guard {tech.guard:g} V)")
+    out.append(f"  model         {result.physics}" + (f"; {result.physics_note}" if result.physics_note else ""))
     out.append(f"  inputs        {' '.join(st.inputs) or '-'}")
     if st.secondary_precharge:
         sp = ", ".join(f"{n} by {d}" for n, d in sorted(st.secondary_precharge.items()))
@@ -96,7 +97,8 @@ def stage_block(result, circuit: Circuit, tech) -> str:
             shown = ", ".join(f"{c.net_a}-{c.net_b} {c.cap_ff:.3f} fF" for c in coupled[:4])
             more = f" and {len(coupled) - 4} more" if len(coupled) > 4 else ""
             out.append(f"  coupling      {shown}{more} (in the wire parts above)")
-        out.append(f"  v_final       {wc.v_final:.3f} V   (lossless estimate {wc.v_final_linear:.3f} V)")
+        case = f", {wc.case} inputs" if getattr(wc, "case", None) else ""
+        out.append(f"  v_final       {wc.v_final:.3f} V   (lossless estimate {wc.v_final_linear:.3f} V{case})")
         out.append(f"  droop         {wc.droop_v:.3f} V")
     sign = "+" if result.margin_v >= 0 else ""
     analysis_verdict = (result.analysis_status or result.status).upper()

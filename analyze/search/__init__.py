@@ -2,6 +2,8 @@
 
 Modules: :mod:`~analyze.search.constraints` (the constraints file),
 :mod:`~analyze.search.patterns` (constraint blocks, enumeration, counting),
+:mod:`~analyze.search.cases` (input-arrival cases: which inputs change at
+the start of evaluation),
 :mod:`~analyze.search.worstcase` (brute force and branch-and-bound),
 :mod:`~analyze.search.flags` (nodes that need a precharge device),
 :mod:`~analyze.search.analysis` (the public entry points).

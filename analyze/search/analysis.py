@@ -48,7 +48,7 @@ True
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Iterator
 
 from analyze.search.constraints import Constraints, check_constraints_apply, stage_blocks
@@ -104,6 +104,12 @@ class StageResult:
     analysis_status : str or None
     simulation_notes : list of str
         What the simulation had to assume (an undriven gate tied off, ...).
+    physics : str
+        The model of the final voltage and threshold: ``"level-1 (tech
+        file)"`` (the lumped model with the tech file's numbers) or
+        ``"foundry models, corner C"`` (device charges and switching point
+        measured from ``[models]``, :mod:`analyze.search.foundry`).
+    physics_note : str or None
     """
 
     stage: Stage
@@ -117,6 +123,8 @@ class StageResult:
     simulation: list = field(default_factory=list)
     analysis_status: str | None = None
     simulation_notes: list = field(default_factory=list)
+    physics: str = "level-1 (tech file)"
+    physics_note: str | None = None
 
     def with_simulation(self, sims: list, notes=()) -> "StageResult":
         """This result with ``sims`` attached and the simulated verdict:
@@ -169,6 +177,17 @@ def analyze_stage(
     threshold = receiver_threshold(circuit, stage, tech)
     found = worst_case(model, choices)
     wc = None if found is None else model.outcome(found.values, found.component)
+    counted = count_counted(model, choices)
+    physics, physics_note = "level-1 (tech file)", None
+    if tech.models is not None and not precharged:
+        from analyze.search.foundry import foundry_worst_case
+
+        outcome = foundry_worst_case(circuit, stage, tech, constraints, counted)
+        if outcome.worst is not None:
+            wc = replace(outcome.worst, v_final_linear=wc.v_final_linear if wc else outcome.worst.v_final_linear)
+        threshold = outcome.threshold_v
+        physics = f"foundry models, corner {outcome.corner or '(library)'}"
+        physics_note = outcome.note
     v = model.to_volts(model.vdd) if wc is None else wc.v_final
     n_type = stage.polarity == "n"
     margin = v - threshold if n_type else threshold - v
@@ -177,6 +196,8 @@ def analyze_stage(
     if status == "fail":
         need = threshold + tech.guard if n_type else tech.vdd - threshold + tech.guard
         flags, note = find_flags(circuit, model, choices, need)
+        if physics != "level-1 (tech file)" and flags:
+            note = ((note + "; ") if note else "") + "flags and their proof use the lumped model"
     return StageResult(
         stage=stage,
         threshold_v=threshold,
@@ -185,7 +206,9 @@ def analyze_stage(
         worst_case=wc,
         flags=flags,
         flag_note=note,
-        counted_patterns=count_counted(model, choices),
+        counted_patterns=counted,
+        physics=physics,
+        physics_note=physics_note,
     )
 
 

@@ -1,8 +1,6 @@
 """Simulation of the worst cases with the foundry's models.
 
-Modules: :mod:`~analyze.simulate.cases` (the input-arrival cases and each
-input's levels in precharge and evaluation),
-:mod:`~analyze.simulate.deck` (a stage as an ngspice deck: devices,
+Modules: :mod:`~analyze.simulate.deck` (a stage as an ngspice deck: devices,
 capacitors, clock and input waveforms, measurements),
 :mod:`~analyze.simulate.run` (the worst few patterns of each stage, run per
 corner, read back as :class:`~analyze.simulate.run.SimulatedCase`).

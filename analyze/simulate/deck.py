@@ -72,7 +72,7 @@ class Run:
     ----------
     levels : dict of str to (int, int)
         Input net -> logical level in precharge and in evaluation
-        (:func:`analyze.simulate.cases.input_levels`).
+        (:func:`analyze.search.cases.input_levels`).
     keeper : bool
         False: keeper gates tied off (the droop without the keeper's help).
     """

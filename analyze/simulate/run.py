@@ -2,7 +2,7 @@
 
 :func:`simulate_stage` takes the worst few patterns the analysis found
 (:func:`analyze.search.analysis.worst_patterns`), every input-arrival case
-the constraints allow (:mod:`analyze.simulate.cases`), with and without
+the constraints allow (:mod:`analyze.search.cases`), with and without
 the keeper's help, and runs them per corner in one ngspice process each
 (:mod:`analyze.simulate.deck`, :mod:`analyze.simulator`).  The receiver's
 switching threshold comes from the same models (a DC sweep of each
@@ -23,7 +23,7 @@ import numpy as np
 
 from analyze.search.analysis import StageResult, worst_patterns
 from analyze.search.constraints import Constraints
-from analyze.simulate.cases import arrival_cases, input_levels
+from analyze.search.cases import arrival_cases, input_levels
 from analyze.simulate.deck import EVAL_NS, MAX_INSTANCES, Run, stage_deck, stage_devices
 from extract.circuit import Circuit
 from extract.errors import InputError

@@ -5,7 +5,7 @@ from extract.techfile import load_tech
 from extract.netlist.reader import read_schematic
 from analyze.search.analysis import analyse_circuit, evaluate_pattern
 from analyze.simulate.run import simulate_stage
-from analyze.simulate.cases import input_levels, top_inputs, low_in_precharge
+from analyze.search.cases import input_levels, top_inputs, low_in_precharge
 from analyze.physics.device_tables import stage_tables
 from analyze.physics.device_charge import gate_levels, final_voltage_with_devices, table_devices, clock_setup
 corner = sys.argv[1]

@@ -180,14 +180,29 @@ def analyze_stage(
     counted = count_counted(model, choices)
     physics, physics_note = "level-1 (tech file)", None
     if tech.models is not None and not precharged:
-        from analyze.search.foundry import foundry_worst_case
+        from analyze.search.foundry import EXHAUSTIVE, RANKED, foundry_worst_case
 
-        outcome = foundry_worst_case(circuit, stage, tech, constraints, counted)
-        if outcome.worst is not None:
-            wc = replace(outcome.worst, v_final_linear=wc.v_final_linear if wc else outcome.worst.v_final_linear)
-        threshold = outcome.threshold_v
-        physics = f"foundry models, corner {outcome.corner or '(library)'}"
-        physics_note = outcome.note
+        from extract.errors import InputError
+
+        if counted is not None and counted <= EXHAUSTIVE:
+            candidates, chosen = list(iter_counted_patterns(circuit, stage, tech, constraints)), None
+        else:
+            candidates = worst_patterns(circuit, stage, tech, constraints, count=RANKED)
+            chosen = (f"foundry-model worst case taken over the lumped model's {len(candidates)} worst patterns "
+                      f"with distinct shared nodes (more than {EXHAUSTIVE} counted patterns)")
+        try:
+            outcome = foundry_worst_case(circuit, stage, tech, constraints, candidates, chosen)
+        except InputError as exc:
+            # the library cannot simulate these devices (outside its bins, ...):
+            # the lumped model stands, and the report says why
+            physics_note = f"foundry models not usable for this stage ({exc.line()}); level-1 numbers used"
+        else:
+            if outcome.worst is not None:
+                wc = replace(outcome.worst,
+                             v_final_linear=wc.v_final_linear if wc else outcome.worst.v_final_linear)
+            threshold = outcome.threshold_v
+            physics = f"foundry models, corner {outcome.corner or '(library)'}"
+            physics_note = outcome.note
     v = model.to_volts(model.vdd) if wc is None else wc.v_final
     n_type = stage.polarity == "n"
     margin = v - threshold if n_type else threshold - v

@@ -44,7 +44,7 @@ class FoundryOutcome:
         self.worst, self.threshold_v, self.corner, self.note = worst, threshold_v, corner, note
 
 
-def foundry_worst_case(circuit, stage, tech, constraints, counted: int) -> FoundryOutcome:
+def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None, cases=None) -> FoundryOutcome:
     """The worst pattern and arrival case with the foundry models.
 
     Parameters
@@ -52,16 +52,19 @@ def foundry_worst_case(circuit, stage, tech, constraints, counted: int) -> Found
     circuit, stage, tech
         ``tech.models`` must be set; its first corner is used.
     constraints : Constraints or None
-    counted : int or None
-        The lumped model's count of counted patterns.
+    candidates : list of WorstCase
+        The patterns to solve (see the module text for how they are chosen,
+        :func:`analyze.search.analysis.analyze_stage`).
+    note : str, optional
+        Said in the result (how the candidates were chosen).
+    cases : iterable of str, optional
+        Only these arrival cases (default: every case the constraints allow).
 
     Returns
     -------
     FoundryOutcome
         ``worst`` is None when no pattern counts.
     """
-    from analyze.search.analysis import iter_counted_patterns, worst_patterns
-
     vdd = float(tech.vdd)
     n_type = stage.polarity == "n"
     corner = tech.models.corners[0] if tech.models.corners else None
@@ -77,14 +80,7 @@ def foundry_worst_case(circuit, stage, tech, constraints, counted: int) -> Found
         threshold = max(vms) if n_type else min(vms)
     else:
         threshold = 0.5 * vdd
-    if counted is not None and counted <= EXHAUSTIVE:
-        candidates = list(iter_counted_patterns(circuit, stage, tech, constraints))
-        note = None
-    else:
-        candidates = worst_patterns(circuit, stage, tech, constraints, count=RANKED)
-        note = (f"foundry-model worst case taken over the lumped model's {len(candidates)} worst patterns "
-                f"with distinct shared nodes (more than {EXHAUSTIVE} counted patterns)")
-    cases = arrival_cases(circuit, stage, constraints)
+    cases = arrival_cases(circuit, stage, constraints) if cases is None else tuple(cases)
     late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
     start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
     worst, worst_v = None, None

@@ -197,6 +197,11 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
         raise InputError(tech.path, "--simulate needs a [models] table (the foundry model library)", "models")
     stage = result.stage
     patterns = worst_patterns(circuit, stage, tech, constraints, count)
+    if result.worst_case is not None:
+        # the analysis' own worst case first (with the foundry models it may
+        # differ from the lumped ranking), then the lumped runners-up
+        first = result.worst_case
+        patterns = [first] + [p for p in patterns if p.inputs != first.inputs][: max(0, count - 1)]
     if not patterns:
         return []
     cases = arrival_cases(circuit, stage, constraints)

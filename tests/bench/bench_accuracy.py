@@ -1,0 +1,118 @@
+"""Accuracy of the analysis against simulation with the foundry models.
+
+For the ten sky130 stages of bench_simulate.py and each corner: the tech file
+is characterised (``dynshare characterize``, cached), every stage is
+analysed (the foundry-model path: device charges measured from the models),
+and its worst pattern per input-arrival case is simulated (``--simulate``
+machinery, keeper tied off like the analysis).  Prints, per stage, corner and
+case, the analysis' final voltage, the simulated extreme within the
+evaluation window and their difference (n-type: positive = optimistic), the
+level-1 model's value for comparison, and the verdicts; then the largest
+errors.  Run by hand::
+
+    python3 tests/bench/bench_accuracy.py [--corners tt ss ff] [--stages NAND3W ...]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(os.path.dirname(HERE))
+sys.path[:0] = [ROOT, os.path.join(ROOT, "tests", "helpers"), HERE]
+
+
+def fitted_techs(corners, folder):
+    """One characterised tech file per corner (fit.<corner>.toml)."""
+    import tomli_w
+    try:
+        import tomllib
+    except ModuleNotFoundError:  # Python 3.10
+        import tomli as tomllib
+    from sky130_pdk import pdk_root
+
+    src = pdk_root() / "sky130" / "src"
+    data = tomllib.loads(open(os.path.join(ROOT, "tests", "pdk", "sky130_hd.toml"), encoding="utf-8").read())
+    data.pop("layers")
+    data["nets"]["power"] += ["VDD"]
+    data["nets"]["ground"] += ["VSS"]
+    data["nets"]["clock"] = ["CLK", "CLKB"]
+    data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": list(corners),
+                      "nmos": "sky130_fd_pr__nfet_01v8", "pmos": "sky130_fd_pr__pfet_01v8_hvt"}
+    data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
+    base = os.path.join(folder, "base.toml")
+    with open(base, "w") as fh:
+        fh.write(tomli_w.dumps(data))
+    out = os.path.join(folder, "fit.toml")
+    cmd = [sys.executable, "-m", "analyze", "characterize", "--tech", base, "--out", out]
+    for c in corners:
+        cmd += ["--corner", c]
+    subprocess.run(cmd, check=True, capture_output=True)
+    return {c: (os.path.join(folder, f"fit.{c}.toml") if len(corners) > 1 else out) for c in corners}
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--corners", nargs="+", default=["tt", "ss", "ff"])
+    ap.add_argument("--stages", nargs="*")
+    args = ap.parse_args(argv)
+    import sky130_stages as bs
+
+    from analyze.search.analysis import analyse_circuit
+    from analyze.simulate.run import simulate_stage
+    from extract.netlist.reader import read_schematic
+    from extract.techfile import load_tech
+    from dataclasses import replace
+
+    tmp = tempfile.mkdtemp(prefix="bench-accuracy-")
+    techs = fitted_techs(args.corners, tmp)
+    rows = []
+    print(f"{'stage':<8} {'corner':<6} {'case':<8} {'analysis':>8} {'sim':>7} {'error':>7} {'level-1':>7} "
+          f"{'an':>4} {'sim':>4}   s")
+    for corner in args.corners:
+        tech = load_tech(techs[corner])
+        level1 = replace(tech, models=None)
+        for name, (ports, devices, caps) in bs.stages().items():
+            if args.stages and name not in args.stages:
+                continue
+            path = os.path.join(tmp, f"{name}.sp")
+            with open(path, "w") as fh:
+                fh.write(bs.netlist(name, ports, devices, caps))
+            circuit = read_schematic(path, tech)
+            t0 = time.perf_counter()
+            _, (r,) = analyse_circuit(circuit, tech)
+            dt = time.perf_counter() - t0
+            _, (r1,) = analyse_circuit(circuit, level1)
+            from analyze.search.foundry import foundry_worst_case
+            from analyze.search.cases import arrival_cases
+            for case in arrival_cases(circuit, r.stage, None):
+                from analyze.search.analysis import iter_counted_patterns
+                fo = foundry_worst_case(circuit, r.stage, tech, None, list(iter_counted_patterns(circuit, r.stage, tech)),
+                                        cases=(case,))
+                if fo.worst is None:
+                    continue
+                sim = [s for s in simulate_stage(circuit, replace(r, worst_case=fo.worst), tech, None, [corner],
+                                                 count=1) if s.case == case][0]
+                v_sim = sim.v_min_without_keeper if sim.v_min_without_keeper is not None else sim.v_min
+                sign = 1 if r.stage.polarity == "n" else -1
+                err = sign * (fo.worst.v_final - v_sim)
+                an = "PASS" if sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard else "FAIL"
+                sv = "PASS" if sign * (v_sim - sim.threshold_v) >= tech.guard else "FAIL"
+                rows.append((name, corner, case, err, an == sv))
+                print(f"{name:<8} {corner:<6} {case:<8} {fo.worst.v_final:8.3f} {v_sim:7.3f} {err:+7.3f} "
+                      f"{r1.worst_case.v_final if r1.worst_case else float('nan'):7.3f} {an:>4} {sv:>4} {dt:5.2f}")
+    worst_opt = max(rows, key=lambda r: r[3])
+    worst_pes = min(rows, key=lambda r: r[3])
+    print(f"\n{len(rows)} stage/corner/case results; most optimistic {worst_opt[3] * 1000:+.0f} mV "
+          f"({worst_opt[0]} {worst_opt[1]} {worst_opt[2]}), most pessimistic {worst_pes[3] * 1000:+.0f} mV "
+          f"({worst_pes[0]} {worst_pes[1]} {worst_pes[2]}); verdicts agree in {sum(r[4] for r in rows)} of {len(rows)}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

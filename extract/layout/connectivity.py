@@ -74,8 +74,11 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
 
     Notes
     -----
-    One STR-tree query per (cut layer, joined layer) and a sparse
-    connected-components pass: O((n + c) log n).
+    One STR-tree query per (cut layer, joined layer) finds the pairs whose
+    boxes and shapes meet; a pair joins when the interiors meet (intersects
+    and not ``touches``, the DE-9IM test, so no intersection polygon is
+    built); a sparse connected-components pass gives the nets:
+    O((n + c) log n).
 
     Examples
     --------
@@ -86,6 +89,11 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
     >>> connect(c, [(np.array([box(0.2, 0.2, 0.4, 0.4)]), ("m1", "m2"))]).tolist()
     [0, 0, 1]
     >>> connect(c, []).tolist()
+    [0, 1, 2]
+
+    A cut that only touches a conductor's edge joins nothing:
+
+    >>> connect(c, [(np.array([box(1, 0, 2, 1)]), ("m1", "m2"))]).tolist()
     [0, 1, 2]
     """
     n = len(conductors.geoms)
@@ -103,8 +111,10 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
             ci, gi = tree.query(cut_geoms, predicate="intersects")
             if len(ci) == 0:
                 continue
-            overlap = shapely.area(shapely.intersection(cut_geoms[ci], conductors.geoms[idx][gi]))
-            keep = overlap > 0
+            # positive-area overlap = the interiors meet = intersects and
+            # does not merely touch (DE-9IM), tested without building the
+            # intersection geometry
+            keep = ~shapely.touches(cut_geoms[ci], conductors.geoms[idx][gi])
             rows.append(ci[keep] + offset)
             cols.append(idx[gi[keep]])
         offset += len(cut_geoms)

@@ -12,6 +12,7 @@ Steps, each a pure function of the one before:
 
 from __future__ import annotations
 
+import os
 import warnings
 
 import numpy as np
@@ -21,7 +22,8 @@ import shapely.errors
 from extract.circuit import Circuit
 from extract.errors import Finding, InputError
 from extract.layout.assemble import assemble
-from extract.layout.reader import FlatLayout, LayoutFile, flatten_cell, read_layout
+from extract.layout.hierarchy import extract_hierarchical
+from extract.layout.reader import FlatLayout, LayoutFile, flatten_cell, open_layout, read_layout
 from extract.layout.units import cell_units
 from extract.tech import Tech
 
@@ -48,7 +50,8 @@ def extract_layout(path: str, tech: Tech, cell: str | None = None) -> Circuit:
     InputError
         For every problem with the layout file (see :func:`read_layout`).
     """
-    return extract_flat(read_layout(path, cell, layers=tech_layers(tech)), tech)
+    tech_layers(tech)  # a tech file without layers is refused before reading
+    return extract_cell(open_layout(path), tech, cell)
 
 
 def tech_layers(tech: Tech) -> set[tuple[int, int]]:
@@ -66,10 +69,27 @@ def tech_layers(tech: Tech) -> set[tuple[int, int]]:
     return wanted | {pair for layer in tech.layers.values() for pair in layer.labels}
 
 
-def extract_cell(layout: LayoutFile, tech: Tech, cell: str | None = None) -> Circuit:
+def extract_cell(layout: LayoutFile, tech: Tech, cell: str | None = None, hierarchical: bool = True) -> Circuit:
     """Like :func:`extract_layout`, from a file already opened with
-    :func:`extract.layout.reader.open_layout` (for many cells of one library)."""
-    return extract_flat(flatten_cell(layout, cell, layers=tech_layers(tech)), tech)
+    :func:`extract.layout.reader.open_layout` (for many cells of one library).
+
+    With ``hierarchical`` (the default) a cell made only of placed cells is
+    extracted by :func:`extract.layout.hierarchy.extract_hierarchical` (each
+    distinct cell once, the same result as flattening); any other cell, and
+    any where that rule does not hold, is flattened.  The environment
+    variable ``DYNSHARE_FLAT=1`` forces flattening.
+    """
+    wanted = tech_layers(tech)
+    if hierarchical and os.environ.get("DYNSHARE_FLAT", "") not in ("1", "true", "yes"):
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore")
+            try:
+                circuit = extract_hierarchical(layout, tech, cell, wanted)
+            except (InputError, shapely.errors.GEOSException):
+                circuit = None  # flattening reports it, or extracts what it can
+        if circuit is not None:
+            return circuit
+    return extract_flat(flatten_cell(layout, cell, layers=wanted), tech)
 
 
 def extract_flat(flat: FlatLayout, tech: Tech) -> Circuit:

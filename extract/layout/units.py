@@ -53,6 +53,9 @@ class CellUnits:
         Capacitance parts per unit, in :data:`extract.circuit.CAP_PART_NAMES` order.
     junctions : list of dict of str to JunctionGeometry
     shapes : list of list of (str, Polygon)
+    layer_units : dict of str to ndarray
+        For each poly and metal layer, the unit of each of its merged shapes
+        (in the order of :func:`layer_shapes`).
     dev : dict of str to ndarray
         One entry per device, in order of position (x, then y, rounded
         to 1e-6 µm): ``type``, ``gate``, ``a``, ``b`` (units), ``w``, ``l``,
@@ -71,6 +74,7 @@ class CellUnits:
     cap: np.ndarray
     junctions: list
     shapes: list
+    layer_units: dict
     dev: dict
     findings: list = field(default_factory=list)
 
@@ -181,7 +185,9 @@ def cell_units(flat: FlatLayout, tech: Tech, shapes: dict | None = None) -> Cell
         geoms.extend(pc.geoms)
         layer_of.extend([pc.layer] * len(pc.geoms))
     wire_layers = [n for n in tech.layers if kinds[n] in ("poly", "metal")]
+    layer_start = {}
     for name in wire_layers:
+        layer_start[name] = len(geoms)
         geoms.extend(shapes[name])
         layer_of.extend([name] * len(shapes[name]))
     geoms = np.asarray(geoms, dtype=object)
@@ -241,6 +247,7 @@ def cell_units(flat: FlatLayout, tech: Tech, shapes: dict | None = None) -> Cell
         cap=cap,
         junctions=junctions,
         shapes=unit_shapes,
+        layer_units={nm: net_of[layer_start[nm] : layer_start[nm] + len(shapes[nm])] for nm in wire_layers},
         dev=dev,
         findings=findings,
     )

@@ -125,7 +125,7 @@ class JunctionGeometry:
         return self.area_um2 == 0 and self.field_perimeter_um == 0 and self.gate_perimeter_um == 0
 
 
-@dataclass
+@dataclass(slots=True)
 class Net:
     """One electrical node.
 
@@ -162,7 +162,7 @@ class Net:
         return self.cap.total
 
 
-@dataclass
+@dataclass(slots=True)
 class Device:
     """One MOSFET.
 

@@ -21,7 +21,10 @@ to the conductors of a flat cell:
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 import numpy as np
+import shapely
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 
@@ -31,7 +34,7 @@ from extract.layout.connectivity import names_from_texts
 from extract.layout.units import CellUnits, best_of
 from extract.tech import Tech
 
-__all__ = ["assemble"]
+__all__ = ["assemble", "PlacedShapes"]
 
 
 def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=None, extra=None,
@@ -56,7 +59,8 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
         Extra candidates for a net's point: ``(global unit, area, x, y)``
         of a conductor made of touching shapes of several placements.
     shapes : bool
-        Whether to fill :attr:`Circuit.shapes` (translated pieces).
+        Whether to give :attr:`Circuit.shapes`: a dict for one placement,
+        else a :class:`PlacedShapes` that translates a net's pieces when asked.
 
     Returns
     -------
@@ -154,7 +158,8 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
             net.labels = tuple(sorted(set(net.labels) | texts))
             net.labelled = True
     unit_name = distinct[per_unit_name]
-    shape_lists: dict[str, list] = {name: [] for name in nets}
+    single = len(placements) == 1 and len(placements[0][1]) == 1
+    shape_lists = {name: [] for name in nets} if single else PlacedShapes(placements, base, unit_name, list(nets))
     findings: list[Finding] = []
     for (u, off), b in zip(placements, base):
         with_junctions = [k for k, jn in enumerate(u.junctions) if jn]
@@ -167,7 +172,7 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
             for f in u.findings:
                 loc_f = None if f.location_um is None else (f.location_um[0] + dx, f.location_um[1] + dy)
                 findings.append(Finding(f.message, loc_f))
-            if shapes:
+            if shapes and single:
                 _place_shapes(u, dx, dy, unit_name[start : start + u.n], shape_lists)
     findings.extend(name_findings)
     devices = _devices(placements, base, unit_name, nets, tech)
@@ -175,9 +180,48 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
                    shapes=shape_lists if shapes else {})
 
 
-def _place_shapes(u: CellUnits, dx: float, dy: float, unit_names, shape_lists) -> None:
-    import shapely
+class PlacedShapes(Mapping):
+    """``Circuit.shapes`` of placed cells, made per net when asked for.
 
+    Net name -> ``(layer, Polygon)`` pieces, translated to each instance.
+    Only drawing reads shapes, and only of the nets it draws, so a block of
+    many instances does not hold a translated copy of every piece.  The
+    first look-up indexes units by net (numpy), O(placed units).
+    """
+
+    def __init__(self, placements, base, unit_name, names):
+        self._placements, self._base, self._unit_name, self._names = placements, base, unit_name, names
+        self._index = None
+
+    def __len__(self):
+        return len(self._names)
+
+    def __iter__(self):
+        return iter(self._names)
+
+    def __getitem__(self, name):
+        if self._index is None:
+            order = np.argsort(self._unit_name, kind="stable")
+            keys = self._unit_name[order]
+            self._index = (order, keys)
+        order, keys = self._index
+        lo, hi = np.searchsorted(keys, name, "left"), np.searchsorted(keys, name, "right")
+        if lo == hi:
+            raise KeyError(name)
+        out = []
+        bounds = self._base
+        for g in np.sort(order[lo:hi]).tolist():
+            p = int(np.searchsorted(bounds, g, "right")) - 1
+            u, off = self._placements[p]
+            inst, k = divmod(g - int(bounds[p]), u.n)
+            items = u.shapes[k]
+            if items:
+                moved = shapely.transform(np.asarray([x for _, x in items], dtype=object), lambda c: c + off[inst])
+                out.extend(zip([l for l, _ in items], moved))
+        return out
+
+
+def _place_shapes(u: CellUnits, dx: float, dy: float, unit_names, shape_lists) -> None:
     if dx == 0 and dy == 0:
         for k, items in enumerate(u.shapes):
             shape_lists[unit_names[k]].extend(items)

@@ -315,7 +315,12 @@ def _merged_points(members, shapes, offs, first_unit, units):
     order = np.argsort(comp, kind="stable")
     cuts = np.flatnonzero(np.diff(comp[order])) + 1
     out = []
+    has_diff = np.zeros(len(unit), bool)
+    for t, k in enumerate(keys):
+        has_diff[t] = units[k[2]].best_diff[units[k[2]].layer_units[k[0]][k[3]]]
     for group in np.split(order, cuts):
+        if has_diff[group].any():
+            continue  # the net has diffusion, whose piece gives its point: no union needed
         for part in parts(shapely.union_all(geoms[group])):
             x, y = shapely.get_coordinates(shapely.point_on_surface(part))[0]
             out.append((int(unit[group[0]]), float(part.area), float(x), float(y)))

@@ -158,3 +158,17 @@ def test_rotated_instance_or_top_shapes_fall_back(tmp_path):
     h, f, default = _both(path)
     assert h is None  # the top cell's own metal: flattened
     assert_same(default, f)
+
+
+def test_placed_shapes_are_the_flat_pieces(tmp_path):
+    # source: the flat extraction's per-net pieces; the hierarchical ones,
+    # translated on demand, cover the same area per net and layer
+    path = str(tmp_path / "a.gds")
+    nand3_array(3, 2).write_gds(path)
+    h, f, _ = _both(path)
+    assert sorted(h.shapes) == sorted(f.shapes)
+    for name in f.shapes:
+        for layer in {l for l, _ in f.shapes[name]}:
+            a = sum(g.area for l, g in h.shapes[name] if l == layer)
+            b = sum(g.area for l, g in f.shapes[name] if l == layer)
+            assert _close(a, b), (name, layer)

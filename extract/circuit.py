@@ -13,7 +13,7 @@ Units: µm, µm², fF.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field
 
 from extract.errors import Finding
 
@@ -74,10 +74,19 @@ class CapParts:
         return self.wire + self.gate + self.overlap
 
     def as_dict(self) -> dict[str, float]:
-        return {f.name: getattr(self, f.name) for f in fields(self)}
+        return {name: getattr(self, name) for name in CAP_PART_NAMES}
 
     def __add__(self, other: "CapParts") -> "CapParts":
-        return CapParts(**{k: v + getattr(other, k) for k, v in self.as_dict().items()})
+        # written out: this runs once per shape, junction and device side,
+        # so no reflection over the fields (dataclasses.fields is slow)
+        return CapParts(
+            self.junction_area + other.junction_area,
+            self.junction_sidewall + other.junction_sidewall,
+            self.junction_gate_edge + other.junction_gate_edge,
+            self.wire + other.wire,
+            self.gate + other.gate,
+            self.overlap + other.overlap,
+        )
 
 
 @dataclass
@@ -116,7 +125,7 @@ class JunctionGeometry:
         return self.area_um2 == 0 and self.field_perimeter_um == 0 and self.gate_perimeter_um == 0
 
 
-@dataclass
+@dataclass(slots=True)
 class Net:
     """One electrical node.
 
@@ -153,7 +162,7 @@ class Net:
         return self.cap.total
 
 
-@dataclass
+@dataclass(slots=True)
 class Device:
     """One MOSFET.
 

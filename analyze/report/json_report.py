@@ -8,8 +8,10 @@ files.
 from __future__ import annotations
 
 import json
+import math
 
 from extract.circuit import Circuit
+from extract.errors import InputError
 from extract.writers.numbers import tool_version
 
 __all__ = [
@@ -187,5 +189,34 @@ def simulation_json(sims) -> list[dict]:
 
 
 def dumps(report: dict) -> str:
-    """JSON text with a trailing newline, keys in insertion order."""
-    return json.dumps(report, indent=2, ensure_ascii=False) + "\n"
+    """JSON text with a trailing newline, keys in insertion order.
+
+    A NaN or an infinity is not JSON: it raises :class:`InputError` naming
+    the key path (the analysis refuses such numbers earlier, naming their
+    cause; this is the last guard).
+
+    >>> dumps({"a": [1.5]})
+    '{\\n  "a": [\\n    1.5\\n  ]\\n}\\n'
+    >>> dumps({"stages": [{"margin_v": float("nan")}]})
+    Traceback (most recent call last):
+    ...
+    extract.errors.InputError: report: stages[0].margin_v: is nan, not a finite number; no report is written
+    """
+    try:
+        return json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    except ValueError:  # only a non-finite float: find where, for the message
+        _refuse_non_finite(report, "")
+        raise
+
+
+def _refuse_non_finite(value, path: str) -> None:
+    """Walk a report (dicts, lists, numbers); iterative, O(size)."""
+    stack = [(value, path)]
+    while stack:
+        item, where = stack.pop()
+        if isinstance(item, float) and not math.isfinite(item):
+            raise InputError("report", f"is {item}, not a finite number; no report is written", where or "report")
+        if isinstance(item, dict):
+            stack.extend((v, f"{where}.{k}" if where else str(k)) for k, v in item.items())
+        elif isinstance(item, (list, tuple)):
+            stack.extend((v, f"{where}[{i}]") for i, v in enumerate(item))

@@ -24,6 +24,8 @@ except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
 from .errors import InputError
+from .inputfile import read_input
+from .limits import MAX_TOML_BYTES, check_toml_depth
 from .tech import CONDUCTOR_KINDS, LAYER_KINDS, Layer, Models, MosParams, NetRoles, Prelayout, Tech
 
 __all__ = ["PLAUSIBLE", "load_tech", "parse_tech"]
@@ -90,15 +92,7 @@ def load_tech(path, mos_optional: bool = False) -> Tech:
     ('dsk18', 1.8, -0.48)
     """
     name = os.fspath(path)
-    try:
-        with open(name, "rb") as stream:
-            raw = stream.read()
-    except FileNotFoundError:
-        raise InputError(name, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(name, "is a directory, not a tech file") from None
-    except OSError as exc:
-        raise InputError(name, f"cannot read: {exc.strerror or exc}") from None
+    raw = read_input(name, "tech file", MAX_TOML_BYTES)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -162,6 +156,7 @@ def parse_tech(text: str, path: str, mos_optional: bool = False) -> Tech:
     extract.errors.InputError: t.toml: layers.poly.area: must be >= 0, got -1
     """
     reader = _Reader(path)
+    check_toml_depth(text, path)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

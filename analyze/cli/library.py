@@ -167,6 +167,11 @@ def run_library(args) -> int:
         constraints = load_constraints(args.constraints)
     cells = open_cells(args.layout, tech).cells
     jobs = max(1, args.jobs or 1)
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    if jobs > cores:
+        sys.stderr.write(f"warning: --jobs {jobs} is more than the {cores} cores this machine gives us; "
+                         f"running {cores}\n")
+        jobs = cores
 
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn

@@ -26,6 +26,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from extract.errors import InputError
+from extract.inputfile import read_input
+from extract.limits import MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
 from extract.layout.gdsii import check_gds_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
@@ -71,8 +73,14 @@ class _QuietNative:
     gdstk reads, so that a bad file yields one clean line from us."""
 
     def __enter__(self):
-        sys.stderr.flush()
-        self._saved = os.dup(2)
+        try:
+            sys.stderr.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+        try:
+            self._saved = os.dup(2)
+        except OSError:  # standard error is closed: nothing to redirect
+            self._saved = None
         self._tmp = tempfile.TemporaryFile()
         os.dup2(self._tmp.fileno(), 2)
         self._warn = warnings.catch_warnings(record=True)
@@ -82,9 +90,15 @@ class _QuietNative:
 
     def __exit__(self, *exc):
         self._warn.__exit__(*exc)
-        sys.stderr.flush()
-        os.dup2(self._saved, 2)
-        os.close(self._saved)
+        try:
+            sys.stderr.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+        if self._saved is None:
+            os.close(2)
+        else:
+            os.dup2(self._saved, 2)
+            os.close(self._saved)
         self._tmp.seek(0)
         self.native = self._tmp.read().decode("utf-8", "replace")
         self._tmp.close()
@@ -129,15 +143,7 @@ def _probe(path: str, is_oas: bool) -> None:
 def _load_library(path: str):
     import gdstk
 
-    if not os.path.exists(path):
-        raise InputError(path, "file not found")
-    if os.path.isdir(path):
-        raise InputError(path, "is a directory, not a layout file")
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise InputError(path, f"cannot read: {exc.strerror}") from None
+    data = read_input(path, "layout file", MAX_LAYOUT_BYTES)
     ext = os.path.splitext(path)[1].lower()
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
@@ -156,7 +162,7 @@ def _load_library(path: str):
         raise InputError(path, f"cannot read {kind} file: {why}")
     if not (lib.precision > 0 and 1e-13 <= lib.precision <= 1e-3):
         raise InputError(path, f"database unit of {lib.precision:g} m is not a usable length (1e-13 to 1e-3 m)")
-    return lib
+    return lib, is_oas
 
 
 def _reference_graph(path, lib) -> dict[str, list[str]]:
@@ -171,13 +177,14 @@ def _reference_graph(path, lib) -> dict[str, list[str]]:
 
 
 #: Most shapes a cell may flatten to (override with DYNSHARE_MAX_SHAPES).
-MAX_FLAT_SHAPES = 20_000_000
+MAX_FLAT_SHAPES = MAX_SHAPES
 
 
-def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
-    """Number of shapes ``start`` flattens to: own polygons and paths plus,
-    per reference, the child's count times its repetition count.
-    Memoised over cells, O(cells + references)."""
+def _flat_count(lib, graph: dict[str, list[str]], start: str, repeated: bool = False) -> int:
+    """Number of shapes ``start`` flattens to: own polygons, paths and
+    labels (each times its own repetition count: OASIS repeats single
+    elements) plus, per reference, the child's count times its repetition
+    count.  Memoised over cells, O(cells + references + elements)."""
     cells = {c.name: c for c in lib.cells}
     memo: dict[str, int] = {}
 
@@ -195,7 +202,8 @@ def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
             stack.pop()
             if name not in memo:
                 c = cells[name]
-                n = len(c.polygons) + len(c.paths)
+                n = sum(reps(e) for e in (*c.polygons, *c.paths, *c.labels)) if repeated else (
+                    len(c.polygons) + len(c.paths) + len(c.labels))
                 for ref in c.references:
                     child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
                     n += memo[child] * reps(ref)
@@ -252,6 +260,7 @@ class LayoutFile:
     path: str
     lib: object
     graph: dict[str, list[str]]
+    oasis: bool = False  #: OASIS repeats single elements; GDSII does not
 
     @property
     def cells(self) -> list[str]:
@@ -261,8 +270,8 @@ class LayoutFile:
 
 def open_layout(path: str) -> LayoutFile:
     """Read a GDSII or OASIS file (see :func:`read_layout` for the errors)."""
-    lib = _load_library(path)
-    return LayoutFile(path, lib, _reference_graph(path, lib))
+    lib, is_oas = _load_library(path)
+    return LayoutFile(path, lib, _reference_graph(path, lib), is_oas)
 
 
 def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
@@ -279,11 +288,12 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     if cell not in graph:
         raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
     _check_tree(path, graph, cell)
-    limit = int(os.environ.get("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES))
-    count = _flat_count(lib, graph, cell)
+    limit = env_limit("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES)
+    count = _flat_count(lib, graph, cell, layout.oasis)
     if count > limit:
         raise InputError(
-            path, f"flattens to {count:,} shapes, more than the limit of {limit:,} (set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
+            path, f"flattens to {count:,} shapes (polygons, paths and labels), more than the limit of {limit:,} "
+            "(set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
         )
 
     top = next(c for c in lib.cells if c.name == cell)

@@ -73,7 +73,11 @@ Bulk
 Notes
 -----
 One recursive walk over the instance tree; every element is visited once
-per instance, so the cost is linear in the flattened size.
+per instance, so the cost is linear in the flattened size.  Devices (after
+``M``/``MULT``/``NF``) and instances are counted as the walk goes and the
+walk stops at ``DYNSHARE_MAX_DEVICES`` of either (default 2 000 000), and
+at subcircuits nested deeper than 200 (:mod:`extract.limits`), before any
+of that work is done.
 """
 
 from __future__ import annotations
@@ -83,6 +87,7 @@ from dataclasses import dataclass
 
 from extract.circuit import CapParts, Circuit, Coupling, Device, JunctionGeometry, Net
 from extract.errors import Finding, InputError
+from extract.limits import MAX_DEVICES, MAX_SUBCKT_DEPTH, env_limit
 from extract.capacitance import gate_parts, junction_parts, overlap_per_side
 from extract.netlist.library import Library, Subckt
 from extract.netlist.expressions import ExpressionError, value_of
@@ -175,6 +180,9 @@ class _Builder:
         else:
             self.scale = 1e-6 if lib.dialect == "cdl" else 1.0
         self.shorts: list[tuple[str, str]] = []
+        #: devices and instances so far, against DYNSHARE_MAX_DEVICES
+        self.max_devices = env_limit("DYNSHARE_MAX_DEVICES", MAX_DEVICES)
+        self.n_devices = self.n_instances = 0
         self.ignore = {n.lower() for n in tech.netlist_ignore}
         self.left_out: Counter = Counter()
         self.couplings: dict[tuple[str, str], list] = {}
@@ -298,6 +306,10 @@ class _Builder:
         m = self.count(vals.get("m", 1), card.place, f"{name}: M")
         m *= self.count(vals.get("mult", 1), card.place, f"{name}: MULT")
         nf = self.count(vals.get("nf", 1), card.place, f"{name}: NF")
+        self.n_devices += m * nf
+        if self.n_devices > self.max_devices:
+            raise self.error(f"{name}: the cell expands to more than {self.max_devices:,} devices (M, MULT, NF and "
+                             "X multipliers applied; set DYNSHARE_MAX_DEVICES)", card.place)
         d, g, s = (self.net(n, prefix, ports) for n in pos[1:4])
         self.mos.append(_Mos(name, self.models[model.lower()], model, d, g, s,
                              given.pop("w"), given.pop("l"), given, m * nf, nf))
@@ -351,6 +363,9 @@ class _Builder:
         if sub.name.lower() in stack:
             chain = " → ".join([*stack, sub.name.lower()])
             raise self.error(f"{name}: recursive instantiation {chain}", card.place)
+        if len(stack) >= MAX_SUBCKT_DEPTH:
+            raise self.error(f"{pos[0]}: subcircuits nest more than {MAX_SUBCKT_DEPTH} deep "
+                             f"({stack[0]} → {stack[1]} → ... → {sub.name})", card.place)
         nodes = pos[1:-1]
         if len(nodes) != len(sub.ports):
             raise self.error(
@@ -369,6 +384,10 @@ class _Builder:
                 have = ", ".join(sorted(declared)) or "none"
                 raise self.error(f"{name}: {sub.name} has no parameter {written} (it has: {have})", card.place)
         child_ports = {p.lower(): self.net(n, prefix, ports) for p, n in zip(sub.ports, nodes)}
+        self.n_instances += copies
+        if self.n_instances > self.max_devices:
+            raise self.error(f"{name}: the cell expands to more than {self.max_devices:,} subcircuit instances "
+                             "(X multipliers applied; set DYNSHARE_MAX_DEVICES)", card.place)
         for j in range(copies):
             tag = pos[0] if copies == 1 else f"{pos[0]}.{j + 1}"
             self.instance(sub, f"{prefix}{tag}/", child_ports, overrides, (*stack, sub.name.lower()))

@@ -17,8 +17,8 @@ import sys
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
-from analyze.cli.output import check_outputs, emit
-from analyze.report.json_report import dumps, header, rounded, stage_json
+from analyze.cli.output import OutputSet, check_outputs
+from analyze.report.json_report import dumps, header, input_name, rounded, stage_json
 
 __all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library"]
 
@@ -183,7 +183,7 @@ def run_library(args) -> int:
         outcomes = check_library(args.layout, args.tech, cells, jobs, args.constraints,
                                  progress=lambda _o: bar.advance(task))
     report = header(os.path.basename(args.layout), tech.vdd)
-    report["library"] = args.layout
+    report["library"] = input_name(args.layout)
     report["cells"] = [
         {"cell": o.cell, "status": o.status, "devices": o.devices,
          "worst_margin_v": None if o.worst_margin is None else rounded(o.worst_margin),
@@ -207,7 +207,9 @@ def run_library(args) -> int:
     report["status"] = "error" if bad else ("fail" if any(o.status == "fail" for o in outcomes) else "pass")
     if args.json != "-":
         sys.stdout.write(summary_table(outcomes))
-    emit(args.json, dumps(report))
+    outputs = OutputSet()
+    outputs.add(args.json, dumps(report))
+    outputs.commit()
     if not bad:
         for o in outcomes:
             for text in o.findings:

@@ -8,13 +8,14 @@ files.
 from __future__ import annotations
 
 import json
+import os
 import math
 
 from extract.circuit import Circuit
 from extract.errors import InputError
 from extract.writers.numbers import tool_version
 
-__all__ = [
+__all__ = ["input_name", 
     "rounded",
     "loc_json",
     "header",
@@ -27,6 +28,18 @@ __all__ = [
     "stage_json",
     "dumps",
 ]
+
+
+def input_name(path: str | None) -> str | None:
+    """How a report names an input file: its file name alone, so that a
+    report does not depend on the folder the command ran in.
+
+    >>> input_name("../cells/DYN_NAND3.sp"), input_name("/abs/lib.gds"), input_name(None)
+    ('DYN_NAND3.sp', 'lib.gds', None)
+    """
+    if not path:
+        return path
+    return os.path.basename(os.path.normpath(str(path))) or str(path)
 
 
 def rounded(x: float, nd: int = 6) -> float:

@@ -149,3 +149,57 @@ def test_closed_stderr_still_exits_2(tmp_path):
 def test_a_name_with_a_newline_stays_on_one_line():
     line = one_error(*run("check", GDS, "--tech", TECH, "--cell", "A\nB")[::2], "dsk18_cells.gds")
     assert "cell A\\nB" in line
+
+
+# ------------------------------------------------------------ outputs: all or none
+
+def test_second_output_unwritable_leaves_no_first(tmp_path):
+    # README: the outputs of a run appear together or not at all
+    out = tmp_path / "r.json"
+    rc, so, se = run("check", GDS, "--tech", TECH, "--cell", "DYN_NAND3", "--json", str(out), "--html", "/dev/full")
+    one_error(rc, se, "/dev/full", "No space left")
+    assert not out.exists()
+    assert [p.name for p in tmp_path.iterdir()] == []  # no temporary file left
+
+
+def test_failed_rename_puts_back_what_was_replaced(tmp_path, monkeypatch):
+    # hand-made failure of the second rename: the first target gets its old content back
+    from analyze.cli.output import OutputSet
+    from extract.errors import InputError
+
+    a, b = tmp_path / "a.json", tmp_path / "b.html"
+    a.write_text("old a")
+    real_replace, calls = os.replace, []
+
+    def failing(src, dst):
+        calls.append(dst)
+        if len(calls) == 2:
+            raise PermissionError(13, "Permission denied")
+        return real_replace(src, dst)
+
+    monkeypatch.setattr(os, "replace", failing)
+    outs = OutputSet()
+    outs.add(str(a), "new a")
+    outs.add(str(b), "new b")
+    with pytest.raises(InputError, match="b.html: cannot write: Permission denied"):
+        outs.commit()
+    monkeypatch.setattr(os, "replace", real_replace)
+    assert a.read_text() == "old a" and not b.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.json"]
+
+
+def test_reports_name_inputs_alike_from_any_folder(tmp_path):
+    # README: reports name an input by its file name, whatever the working folder
+    sp = os.path.join(ROOT, "sample_layouts", "DYN_NAND3.sp")
+    outs = []
+    for k, cwd in enumerate((ROOT, tmp_path)):
+        j = tmp_path / f"c{k}.json"
+        h = tmp_path / f"c{k}.html"
+        rel = os.path.relpath(sp, cwd)
+        env = {"PYTHONPATH": os.path.abspath(ROOT)}
+        rc, so, se = run("compare", os.path.relpath(GDS, cwd), "--tech", os.path.relpath(TECH, cwd), "--cell",
+                         "DYN_NAND3", "--schematic", rel, "--json", str(j), "--html", str(h), cwd=cwd, env=env)
+        assert rc in (0, 1), se
+        outs.append((j.read_bytes(), h.read_bytes()))
+    assert outs[0] == outs[1]
+    assert b'"schematic": "DYN_NAND3.sp"' in outs[0][0]

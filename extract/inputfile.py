@@ -103,7 +103,8 @@ def read_input(path: str, what: str, limit: int) -> bytes:
         if info.st_size > limit:
             raise InputError(path, f"is {info.st_size} bytes, more than a {what} may be ({limit} bytes)")
         with os.fdopen(fd, "rb", closefd=False) as fh:
-            data = fh.read(limit + 1)
+            # read(n) reserves n bytes first: ask for the size the file has
+            data = fh.read(info.st_size + 1)
     except OSError as exc:
         raise InputError(path, f"cannot read: {exc.strerror or exc}") from None
     finally:

@@ -9,6 +9,8 @@ limit                        default                environment variable
 ==========================  =====================  ==========================
 shapes of a flattened cell   20 000 000             ``DYNSHARE_MAX_SHAPES``
   (polygons, paths and text labels, every array and repetition counted)
+text labels of a flattened   1 000 000              ``DYNSHARE_MAX_LABELS``
+  cell (each label is a Python object: slower than a shape)
 devices of a netlist cell    2 000 000              ``DYNSHARE_MAX_DEVICES``
   (after ``M``, ``MULT``, ``NF`` and ``X`` expansion; subcircuit instances
   are counted against the same number)
@@ -26,10 +28,11 @@ import os
 
 from extract.errors import InputError
 
-__all__ = ["MAX_SHAPES", "MAX_DEVICES", "MAX_SUBCKT_DEPTH", "MAX_TOML_DEPTH", "MAX_LAYOUT_BYTES",
+__all__ = ["MAX_SHAPES", "MAX_LABELS", "MAX_DEVICES", "MAX_SUBCKT_DEPTH", "MAX_TOML_DEPTH", "MAX_LAYOUT_BYTES",
            "MAX_NETLIST_BYTES", "MAX_TOML_BYTES", "check_toml_depth", "env_limit"]
 
 MAX_SHAPES = 20_000_000
+MAX_LABELS = 1_000_000
 MAX_DEVICES = 2_000_000
 MAX_SUBCKT_DEPTH = 200
 MAX_TOML_DEPTH = 100

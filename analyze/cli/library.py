@@ -168,9 +168,9 @@ def run_library(args) -> int:
     cells = open_cells(args.layout, tech).cells
     jobs = max(1, args.jobs or 1)
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    notes = []  # printed with the warnings, once the outputs are written
     if jobs > cores:
-        sys.stderr.write(f"warning: --jobs {jobs} is more than the {cores} cores this machine gives us; "
-                         f"running {cores}\n")
+        notes.append(f"--jobs {jobs} is more than the {cores} cores this machine gives us; ran {cores}")
         jobs = cores
 
     from rich.console import Console
@@ -211,6 +211,8 @@ def run_library(args) -> int:
     outputs.add(args.json, dumps(report))
     outputs.commit()
     if not bad:
+        for text in notes:
+            sys.stderr.write(f"warning: {text}\n")
         for o in outcomes:
             for text in o.findings:
                 sys.stderr.write(f"warning: cell {o.cell}: {text}\n")

@@ -27,7 +27,7 @@ import numpy as np
 
 from extract.errors import InputError
 from extract.inputfile import read_input
-from extract.limits import MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
+from extract.limits import MAX_LABELS, MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
 from extract.layout.gdsii import check_gds_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
@@ -180,11 +180,13 @@ def _reference_graph(path, lib) -> dict[str, list[str]]:
 MAX_FLAT_SHAPES = MAX_SHAPES
 
 
-def _flat_count(lib, graph: dict[str, list[str]], start: str, repeated: bool = False) -> int:
+def _flat_count(lib, graph: dict[str, list[str]], start: str, repeated: bool = False,
+                labels_only: bool = False) -> int:
     """Number of shapes ``start`` flattens to: own polygons, paths and
     labels (each times its own repetition count: OASIS repeats single
     elements) plus, per reference, the child's count times its repetition
-    count.  Memoised over cells, O(cells + references + elements)."""
+    count.  With ``labels_only``, the labels alone.  Memoised over cells,
+    O(cells + references + elements)."""
     cells = {c.name: c for c in lib.cells}
     memo: dict[str, int] = {}
 
@@ -202,8 +204,8 @@ def _flat_count(lib, graph: dict[str, list[str]], start: str, repeated: bool = F
             stack.pop()
             if name not in memo:
                 c = cells[name]
-                n = sum(reps(e) for e in (*c.polygons, *c.paths, *c.labels)) if repeated else (
-                    len(c.polygons) + len(c.paths) + len(c.labels))
+                own = c.labels if labels_only else (*c.polygons, *c.paths, *c.labels)
+                n = sum(reps(e) for e in own) if repeated else len(own)
                 for ref in c.references:
                     child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
                     n += memo[child] * reps(ref)
@@ -295,6 +297,11 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
             path, f"flattens to {count:,} shapes (polygons, paths and labels), more than the limit of {limit:,} "
             "(set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
         )
+    label_limit = env_limit("DYNSHARE_MAX_LABELS", MAX_LABELS)
+    labels = _flat_count(lib, graph, cell, layout.oasis, labels_only=True)
+    if labels > label_limit:
+        raise InputError(path, f"flattens to {labels:,} text labels, more than the limit of {label_limit:,} "
+                               "(set DYNSHARE_MAX_LABELS)", f"cell {cell}")
 
     top = next(c for c in lib.cells if c.name == cell)
     grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3

@@ -508,6 +508,78 @@ class _Builder:
                        self.findings, source=self.path, couplings=couplings)
 
 
+def _literal(text: str) -> float | None:
+    """A multiplier written as a plain number, else None (an expression)."""
+    try:
+        return value_of(text, {})
+    except (ExpressionError, ValueError, OverflowError):
+        return None
+
+
+def expansion_floor(lib: Library, top: Subckt, devices: set[str] | None = None) -> tuple[int, int]:
+    r"""At least how many (devices, instances) ``top`` expands to, before any
+    parameter is evaluated.
+
+    Multipliers written as plain numbers (``M=1000``, ``NF=4``) are
+    applied; one given by an expression counts as 1, so the result is a
+    lower bound of the real expansion and a cell whose floor already passes
+    the limit is refused before the walk starts.
+
+    Examples
+    --------
+    >>> from extract.netlist.library import parse_library
+    >>> text = ".subckt L a\nM1 a a 0 0 n W=1u L=1u M=10 NF=2\n.ends\n"
+    >>> text += ".subckt T a\nX1 a L M=1000\nX2 a L\n.ends\n"
+    >>> lib = parse_library(text, "t.sp")
+    >>> expansion_floor(lib, lib.subckts["t"])
+    (20020, 1001)
+
+    Notes
+    -----
+    Post-order over the subcircuit graph without recursion, memoised:
+    O(elements of the file).  Instances of unknown subcircuits and cycles
+    count 0 here (the walk reports them).
+    """
+    devices = devices or set()
+    memo: dict[str, tuple[int, int]] = {}
+    stack = [(top.name.lower(), False)]
+    active: set[str] = set()
+    while stack:
+        key, done = stack.pop()
+        sub = lib.subckts.get(key)
+        if sub is None or key in memo:
+            continue
+        if not done:
+            if key in active:
+                continue
+            active.add(key)
+            stack.append((key, True))
+            for _, pos, _ in sub.elements:
+                child = pos[-1].lower()
+                if pos[0][:1] in "xX" and child in lib.subckts and child not in memo and child not in active:
+                    stack.append((child, False))
+            continue
+        active.discard(key)
+        n_dev = n_inst = 0
+        for _, pos, params in sub.elements:
+            mult = 1
+            for k, _, text in params:
+                if k in ("m", "mult", "nf"):
+                    v = _literal(text)
+                    if v is not None and 1 <= v <= 1e15:
+                        mult *= int(v)
+            letter = pos[0][:1].lower()
+            child = pos[-1].lower()
+            if letter == "m" or (letter == "x" and child in devices):
+                n_dev += mult
+            elif letter == "x" and child in memo:
+                d, i = memo[child]
+                n_dev += mult * d
+                n_inst += mult * (i + 1)
+        memo[key] = (n_dev, n_inst)
+    return memo.get(top.name.lower(), (0, 0))
+
+
 def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:
     """Elaborate subcircuit ``top`` of ``lib`` into a flat circuit.
 
@@ -531,6 +603,12 @@ def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:
         Any value, model, node-count or hierarchy error, naming the line.
     """
     b = _Builder(lib, tech, path)
+    n_dev, n_inst = expansion_floor(lib, top, set(b.devices))
+    if max(n_dev, n_inst) > b.max_devices:
+        what = "devices" if n_dev > b.max_devices else "subcircuit instances"
+        raise InputError(path, f"{top.name} expands to at least {max(n_dev, n_inst):,} {what} (M, MULT, NF and X "
+                               f"multipliers applied), more than the limit of {b.max_devices:,} "
+                               "(set DYNSHARE_MAX_DEVICES)", f"line {top.line}")
     ports: dict[str, str] = {}
     for port in top.ports:
         ports[port.lower()] = b.net(port, "", {})

@@ -88,7 +88,8 @@ def test_m_and_nf_beyond_the_device_limit(tmp_path):
     # M=100000 NF=100000 is 1e10 devices by hand; the README's limit is 2 million
     sp = tmp_path / "big.sp"
     sp.write_text(NETLIST_HEAD + "M1 X CLK VSS VSS nch W=1u L=0.18u M=100000 NF=100000\n.ends\n")
-    one_error(*run("check", str(sp), "--tech", TECH, timeout=60)[::2], "big.sp", "line 2", "2,000,000 devices")
+    one_error(*run("check", str(sp), "--tech", TECH, timeout=60)[::2], "big.sp", "line 1", "10,000,000,000 devices",
+              "limit of 2,000,000")
 
 
 def test_nested_instance_fan_out_is_stopped(tmp_path):
@@ -125,7 +126,7 @@ def test_deeply_nested_toml(tmp_path, which):
 def test_jobs_is_cut_to_the_cores_with_a_warning(tmp_path):
     rc, so, se = run("check", GDS, "--tech", TECH, "--all-cells", "--jobs", "100000")
     assert rc in (0, 1), se
-    assert "warning: --jobs 100000 is more than the" in se
+    assert "warning: --jobs 100000 is more than the" in se and "ran " in se
 
 
 # ------------------------------------------------------------ streams and names
@@ -203,3 +204,12 @@ def test_reports_name_inputs_alike_from_any_folder(tmp_path):
         outs.append((j.read_bytes(), h.read_bytes()))
     assert outs[0] == outs[1]
     assert b'"schematic": "DYN_NAND3.sp"' in outs[0][0]
+
+
+def test_multiplier_given_by_a_parameter_is_stopped_on_the_way(tmp_path):
+    # M from an expression escapes the floor count before the walk; the running count stops it
+    # (1000 x 1000 x 10 = 1e7 devices by hand, above the 2 million of the README)
+    sp = tmp_path / "param.sp"
+    sp.write_text(".param big=1000\n.subckt L A\nM1 A A 0 0 nch W=1u L=0.18u M=big\n.ends\n"
+                  ".subckt T A\nX1 A L M={big}\n" + "".join(f"X{i} A L M={{big}}\n" for i in range(2, 11)) + ".ends\n")
+    one_error(*run("check", str(sp), "--tech", TECH, timeout=60)[::2], "param.sp", "2,000,000 devices")

@@ -147,7 +147,7 @@ def summary_table(outcomes: list[CellOutcome]) -> str:
 
 def run_library(args) -> int:
     from analyze.cli.inputs import open_cells
-    from extract.errors import InputError
+    from extract.errors import InputError, listing
     from extract.techfile import load_tech
 
     if getattr(args, "html", None):
@@ -217,10 +217,9 @@ def run_library(args) -> int:
             for text in o.findings:
                 sys.stderr.write(f"warning: cell {o.cell}: {text}\n")
     if bad:
-        names = ", ".join(o.cell for o in bad[:10]) + (" ..." if len(bad) > 10 else "")
-        sys.stderr.write(
-            f"error: {args.layout}: {len(bad)} of {len(outcomes)} cells could not be analysed "
-            f"(see \"error\" in the JSON report): {names}; first: {bad[0].error}\n"
-        )
+        names = listing([o.cell for o in bad], 5)
+        line = InputError(args.layout, f"{len(bad)} of {len(outcomes)} cells could not be analysed "
+                                       f"(see \"error\" in the JSON report): {names}; first: {bad[0].error}").line()
+        sys.stderr.write(f"error: {line}\n")
         return 2
     return 1 if report["status"] == "fail" else 0

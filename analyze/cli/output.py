@@ -45,12 +45,20 @@ def check_outputs(outputs: dict[str, str | None], inputs: list[str]) -> None:
     Examples
     --------
     >>> check_outputs({"--json": "-"}, ["a.gds"])
+    >>> check_outputs({"--json": "-", "--html": "-"}, [])
+    Traceback (most recent call last):
+    ...
+    extract.errors.InputError: -: --html: only one output can go to stdout (--json, --html were given '-')
     >>> check_outputs({"--json": "a.gds"}, ["a.gds"])
     Traceback (most recent call last):
     ...
     extract.errors.InputError: a.gds: --json: would overwrite an input file
     """
     seen: dict[str, str] = {}
+    to_stdout = [option for option, path in outputs.items() if path == "-"]
+    if len(to_stdout) > 1:
+        raise InputError("-", f"only one output can go to stdout ({', '.join(to_stdout)} were given '-')",
+                         to_stdout[1])
     for option, path in outputs.items():
         if not path or path == "-":
             continue

@@ -213,3 +213,10 @@ def test_multiplier_given_by_a_parameter_is_stopped_on_the_way(tmp_path):
     sp.write_text(".param big=1000\n.subckt L A\nM1 A A 0 0 nch W=1u L=0.18u M=big\n.ends\n"
                   ".subckt T A\nX1 A L M={big}\n" + "".join(f"X{i} A L M={{big}}\n" for i in range(2, 11)) + ".ends\n")
     one_error(*run("check", str(sp), "--tech", TECH, timeout=60)[::2], "param.sp", "2,000,000 devices")
+
+
+def test_two_outputs_to_stdout_are_refused():
+    # found by the long fuzz run (args seed 1353): JSON and HTML mixed on stdout is no JSON;
+    # README: `--json -` writes the report to standard output "and then nothing else goes there"
+    one_error(*run("check", GDS, "--tech", TECH, "--cell", "DYN_NAND3", "--json", "-", "--html", "-")[::2],
+              "only one output can go to stdout")

@@ -9,7 +9,9 @@ Top level (the shared vocabulary, imported by every subpackage):
 - :mod:`extract.circuit` -- the circuit model dataclasses;
 - :mod:`extract.tech`, :mod:`extract.techfile` -- the tech file and its reader;
 - :mod:`extract.capacitance` -- the area-perimeter formulas;
-- :mod:`extract.errors` -- ``InputError`` and ``Finding``.
+- :mod:`extract.errors` -- ``InputError`` and ``Finding``;
+- :mod:`extract.limits`, :mod:`extract.inputfile` -- the work limits; reading an
+  input file (regular files only, within a size).
 
 Subpackages, in pipeline order (each imports only the top level and, where
 said, the one before it):

@@ -24,9 +24,11 @@ except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
 from .errors import InputError
+from .inputfile import read_input
+from .limits import MAX_TOML_BYTES, check_toml_depth
 from .tech import CONDUCTOR_KINDS, LAYER_KINDS, Layer, Models, MosParams, NetRoles, Prelayout, Tech
 
-__all__ = ["load_tech", "parse_tech"]
+__all__ = ["PLAUSIBLE", "load_tech", "parse_tech"]
 
 _TOP_KEYS = ("process", "nets", "layers", "mos", "check", "prelayout", "netlist", "models")
 _LAYER_KEYS = ("gds", "kind", "area", "fringe", "labels", "joins")
@@ -43,6 +45,16 @@ _RULES = {
     ">=0": (lambda v: v >= 0, "must be >= 0"),
     "<0": (lambda v: v < 0, "must be < 0 (a pmos threshold is negative)"),
     "[0,1)": (lambda v: 0 <= v < 1, "must be in [0, 1)"),
+}
+#: Ranges a real process can have (units of the README's tables): a number
+#: outside them is a unit mistake or a typo, and some (kp = 5e-324, pb =
+#: 1e-308) would make the analysis' arithmetic meaningless.  Key -> (low, high).
+PLAUSIBLE = {
+    "vdd": (0.1, 50.0), "vt0": (0.01, 5.0), "gamma": (0.0, 5.0), "phi": (0.01, 3.0),
+    "kp": (0.1, 1e4), "cox": (0.1, 100.0), "cgo": (0.0, 10.0), "cj": (0.0, 100.0), "cjsw": (0.0, 100.0),
+    "cjswg": (0.0, 100.0), "mj": (0.0, 0.99), "mjsw": (0.0, 0.99), "mjswg": (0.0, 0.99), "pb": (0.05, 5.0),
+    "pbsw": (0.05, 5.0), "pbswg": (0.05, 5.0), "area": (0.0, 100.0), "fringe": (0.0, 100.0),
+    "contacted_length": (0.001, 100.0), "uncontacted_length": (0.001, 100.0),
 }
 _BARE_KEY = re.compile(r"[A-Za-z0-9_-]+\Z")
 _TOML_WHERE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*\Z")
@@ -80,15 +92,7 @@ def load_tech(path, mos_optional: bool = False) -> Tech:
     ('dsk18', 1.8, -0.48)
     """
     name = os.fspath(path)
-    try:
-        with open(name, "rb") as stream:
-            raw = stream.read()
-    except FileNotFoundError:
-        raise InputError(name, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(name, "is a directory, not a tech file") from None
-    except OSError as exc:
-        raise InputError(name, f"cannot read: {exc.strerror or exc}") from None
+    raw = read_input(name, "tech file", MAX_TOML_BYTES)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -152,6 +156,7 @@ def parse_tech(text: str, path: str, mos_optional: bool = False) -> Tech:
     extract.errors.InputError: t.toml: layers.poly.area: must be >= 0, got -1
     """
     reader = _Reader(path)
+    check_toml_depth(text, path)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -252,6 +257,12 @@ class _Reader:
             test, message = _RULES[rule]
             if not test(value):
                 self.fail(place, f"{message}, got {value}")
+        if key in PLAUSIBLE:
+            low, high = PLAUSIBLE[key]
+            if not low <= abs(value) <= high:
+                sign = "-" if value < 0 else ""
+                self.fail(place, f"{value:g} is outside what a real process has ({sign}{low:g} to {sign}{high:g}; "
+                                 "see the README's tech-file tables): a unit mistake?")
         return float(value)
 
     def string(self, value, place) -> str:

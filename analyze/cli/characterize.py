@@ -7,7 +7,7 @@ from __future__ import annotations
 import os
 import sys
 
-from analyze.cli.output import check_outputs, emit
+from analyze.cli.output import OutputSet, check_outputs
 from extract.errors import InputError
 
 __all__ = ["corner_outputs", "characterize_text", "run"]
@@ -74,7 +74,7 @@ def run(args) -> int:
     from analyze.characterize.process import characterize_corner
     from analyze.characterize.techout import fitted_tech_text
     from analyze.simulator.models import prune_models
-    from analyze.report.json_report import dumps
+    from analyze.report.json_report import dumps, input_name
     from extract.techfile import load_tech, parse_tech
     from extract.writers.numbers import tool_version
 
@@ -109,10 +109,12 @@ def run(args) -> int:
     report = "".join(characterize_text(f, o) for f, o in zip(fits, outputs))
     if args.json != "-":
         sys.stdout.write(report)
+    files = OutputSet()
     for out, text in zip(outputs, texts):
-        emit(out, text)
+        files.add(out, text)
     if args.json:
-        emit(args.json, dumps({"tool": "dynshare", "version": tool_version(), "tech": args.tech,
+        files.add(args.json, dumps({"tool": "dynshare", "version": tool_version(), "tech": input_name(args.tech),
                                "corners": [dict(f.to_json(), output=o, cached=f.cached)
                                            for f, o in zip(fits, outputs)]}))
+    files.commit()
     return 0

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import sys
 
-from analyze.cli.output import check_outputs, emit
+from analyze.cli.output import OutputSet, check_outputs
 from analyze.report.json_report import (couplings_json, devices_json, dumps, findings_json, header, nets_json,
                                         stage_json)
 from analyze.report.text import check_header, stage_block
@@ -93,10 +93,12 @@ def check_cell(args) -> int:
         html = check_html(circuit, tech, recognition, results, constraints=constraints)
     if args.json != "-":
         sys.stdout.write(text)
+    outputs = OutputSet()
     if args.json:  # the report is built and serialised only when asked for
-        emit(args.json, dumps(check_report(circuit, tech, recognition, results)))
+        outputs.add(args.json, dumps(check_report(circuit, tech, recognition, results)))
     if html is not None:
-        emit(args.html, html)
+        outputs.add(args.html, html)
+    outputs.commit()
     warn(list(circuit.findings) + list(recognition.findings))
     return 1 if failed else 0
 

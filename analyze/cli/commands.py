@@ -9,7 +9,7 @@ from __future__ import annotations
 import sys
 
 from analyze.cli.check import warn
-from analyze.cli.output import check_outputs, emit
+from analyze.cli.output import OutputSet, check_outputs
 from analyze.report.json_report import dumps, extract_report
 from extract.techfile import load_tech
 
@@ -60,8 +60,10 @@ def run_extract(args) -> int:
         texts[args.spef] = write_spef(circuit, tech)
     if not stdout_users:
         sys.stdout.write(extract_summary(circuit))
+    outputs = OutputSet()
     for path, text in texts.items():
-        emit(path, text)
+        outputs.add(path, text)
+    outputs.commit()
     warn(circuit.findings)
     return 0
 

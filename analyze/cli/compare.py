@@ -5,8 +5,8 @@ from __future__ import annotations
 
 import sys
 
-from analyze.cli.output import emit
-from analyze.report.json_report import dumps, flags_json, header, rounded, worst_case_json
+from analyze.cli.output import OutputSet
+from analyze.report.json_report import dumps, flags_json, header, input_name, rounded, worst_case_json
 from analyze.report.text import fmt_loc
 
 __all__ = ["compare_cell", "compare_report", "compare_text", "read_matching_schematic"]
@@ -39,7 +39,7 @@ def _side(r) -> dict | None:
 
 def compare_report(cmp) -> dict:
     report = header(cmp.post.cell, cmp.tech.vdd)
-    report["schematic"] = cmp.pre.source
+    report["schematic"] = input_name(cmp.pre.source)
     report["nets"] = [
         {
             "name": d.name,
@@ -89,7 +89,7 @@ def _num(x, fmt="{:.3f}") -> str:
 
 
 def compare_text(cmp) -> str:
-    out = [f"cell {cmp.post.cell}: schematic {cmp.pre.source} against layout {cmp.post.source} "
+    out = [f"cell {cmp.post.cell}: schematic {input_name(cmp.pre.source)} against layout {input_name(cmp.post.source)} "
            f"(process {cmp.tech.name}, VDD {cmp.tech.vdd:g} V)"]
     out.append(f"  {len(cmp.net_map)} nets matched")
     for note in cmp.notes:
@@ -160,9 +160,11 @@ def compare_cell(args) -> int:
         html = compare_html(cmp)
     if args.json != "-":
         sys.stdout.write(compare_text(cmp))
-    emit(args.json, dumps(report))
+    outputs = OutputSet()
+    outputs.add(args.json, dumps(report))
     if html is not None:
-        emit(args.html, html)
+        outputs.add(args.html, html)
+    outputs.commit()
     from analyze.cli.check import warn
 
     warn(list(pre.findings) + list(post.findings))

@@ -16,7 +16,7 @@ import os
 import sys
 from importlib import resources
 
-from analyze.cli.output import write_atomic
+from analyze.cli.output import OutputSet
 from analyze.report.json_report import dumps, extract_report
 
 __all__ = ["sample_path", "run"]
@@ -61,19 +61,20 @@ def run(args) -> int:
     gds, tech_path = sample_path("dsk18_cells.gds"), sample_path("dsk18.toml")
     tech = load_tech(tech_path)
     rows, links = [], []
+    outputs = OutputSet()
     for cell in _cells(gds):
         circuit = extract_layout(gds, tech, cell)
-        write_atomic(os.path.join(out, f"{cell}.extract.json"), dumps(extract_report(circuit, tech)))
-        write_atomic(os.path.join(out, f"{cell}.extracted.sp"), write_spice(circuit, tech))
-        write_atomic(os.path.join(out, f"{cell}.extracted.spef"), write_spef(circuit, tech))
+        outputs.add(os.path.join(out, f"{cell}.extract.json"), dumps(extract_report(circuit, tech)))
+        outputs.add(os.path.join(out, f"{cell}.extracted.sp"), write_spice(circuit, tech))
+        outputs.add(os.path.join(out, f"{cell}.extracted.spef"), write_spef(circuit, tech))
 
         cpath = sample_path(f"{cell}.constraints.toml")
         constraints = load_constraints(cpath) if os.path.exists(cpath) else None
         recognition, results = analyse_circuit(circuit, tech, constraints, cpath)
-        write_atomic(os.path.join(out, f"{cell}.check.json"), dumps(check_report(circuit, tech, recognition, results)))
-        write_atomic(os.path.join(out, f"{cell}.check.html"),
+        outputs.add(os.path.join(out, f"{cell}.check.json"), dumps(check_report(circuit, tech, recognition, results)))
+        outputs.add(os.path.join(out, f"{cell}.check.html"),
                      check_html(circuit, tech, recognition, results, constraints=constraints))
-        write_atomic(os.path.join(out, f"{cell}.check.txt"), check_text(circuit, tech, recognition, results))
+        outputs.add(os.path.join(out, f"{cell}.check.txt"), check_text(circuit, tech, recognition, results))
         page = [f"{cell}.check.html"]
 
         droop_inc = ""
@@ -81,9 +82,9 @@ def run(args) -> int:
         if os.path.exists(spath):
             pre = read_matching_schematic(spath, tech, cell)
             cmp = compare_circuits(pre, circuit, match_circuits(pre, circuit), tech, constraints, cpath)
-            write_atomic(os.path.join(out, f"{cell}.compare.json"), dumps(compare_report(cmp)))
-            write_atomic(os.path.join(out, f"{cell}.compare.html"), compare_html(cmp))
-            write_atomic(os.path.join(out, f"{cell}.compare.txt"), compare_text(cmp))
+            outputs.add(os.path.join(out, f"{cell}.compare.json"), dumps(compare_report(cmp)))
+            outputs.add(os.path.join(out, f"{cell}.compare.html"), compare_html(cmp))
+            outputs.add(os.path.join(out, f"{cell}.compare.txt"), compare_text(cmp))
             page.append(f"{cell}.compare.html")
             incs = [s.droop_increase_v for s in cmp.stages if s.droop_increase_v is not None]
             droop_inc = f"{max(incs):+.3f}" if incs else ""
@@ -119,7 +120,8 @@ def run(args) -> int:
         "sign-off needs foundry-qualified extraction and simulation.</p>"
         f"<pre>{html.escape(chr(10).join(lines))}</pre><ul>{items}</ul></body></html>\n"
     )
-    write_atomic(os.path.join(out, "index.html"), index)
+    outputs.add(os.path.join(out, "index.html"), index)
+    outputs.commit()
     lines += [
         "",
         "The demo always exits 0 when it ran; DYN_NAND3_LONG fails its check on purpose (long internal",

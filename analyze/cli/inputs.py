@@ -10,6 +10,7 @@ layout library: the file is read once, each cell becomes a
 from __future__ import annotations
 
 import os
+import stat
 from dataclasses import dataclass
 from typing import Callable
 
@@ -43,8 +44,9 @@ def input_kind(path: str) -> str:
     >>> os.unlink(f.name)
     """
     try:
-        with open(path, "rb") as fh:
-            head = fh.read(4096)
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+        with os.fdopen(fd, "rb") as fh:
+            head = fh.read(4096) if stat.S_ISREG(os.fstat(fd).st_mode) else b""
     except OSError:
         return "netlist" if path.lower().endswith(_NETLIST_NAMES) else "layout"
     if head.startswith(_GDS_MAGIC) or head.startswith(_OASIS_MAGIC) or b"\0" in head:
@@ -82,8 +84,9 @@ def open_cells(path: str, tech) -> CellSource:
     InputError
         Anything wrong with the file (see the layout and netlist readers).
     """
-    if os.path.isdir(path):
-        raise InputError(path, "is a directory, not a layout or netlist file")
+    from extract.inputfile import check_input
+
+    check_input(path, "layout or netlist file")  # before a byte is read: no FIFO, device, directory
     if input_kind(path) == "layout":
         from extract.layout.pipeline import extract_cell, tech_layers
         from extract.layout.reader import open_layout

@@ -23,8 +23,8 @@ import sys
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
-from analyze.cli.output import check_outputs, emit
-from analyze.report.json_report import dumps, header, rounded, stage_json
+from analyze.cli.output import OutputSet, check_outputs
+from analyze.report.json_report import dumps, header, input_name, rounded, stage_json
 
 __all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library", "open_library"]
 
@@ -206,7 +206,7 @@ def summary_table(outcomes: list[CellOutcome]) -> str:
 
 
 def run_library(args) -> int:
-    from extract.errors import InputError
+    from extract.errors import InputError, listing
 
     if getattr(args, "html", None):
         raise InputError(args.html, "--html is written per cell; it cannot be combined with --all-cells", "--html")
@@ -225,6 +225,11 @@ def run_library(args) -> int:
     source, tech, constraints = open_library(args.layout, args.tech, args.constraints)
     cells = source.cells
     jobs = max(1, args.jobs or 1)
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    notes = []  # printed with the warnings, once the outputs are written
+    if jobs > cores:
+        notes.append(f"--jobs {jobs} is more than the {cores} cores this machine gives us; ran {cores}")
+        jobs = cores
 
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
@@ -236,7 +241,7 @@ def run_library(args) -> int:
         outcomes = check_library(args.layout, args.tech, cells, jobs, args.constraints,
                                  progress=lambda _o: bar.advance(task), scheduler=scheduler)
     report = header(os.path.basename(args.layout), tech.vdd)
-    report["library"] = args.layout
+    report["library"] = input_name(args.layout)
     report["cells"] = [
         {"cell": o.cell, "status": o.status, "devices": o.devices,
          "worst_margin_v": None if o.worst_margin is None else rounded(o.worst_margin),
@@ -260,16 +265,19 @@ def run_library(args) -> int:
     report["status"] = "error" if bad else ("fail" if any(o.status == "fail" for o in outcomes) else "pass")
     if args.json != "-":
         sys.stdout.write(summary_table(outcomes))
-    emit(args.json, dumps(report))
+    outputs = OutputSet()
+    outputs.add(args.json, dumps(report))
+    outputs.commit()
     if not bad:
+        for text in notes:
+            sys.stderr.write(f"warning: {text}\n")
         for o in outcomes:
             for text in o.findings:
                 sys.stderr.write(f"warning: cell {o.cell}: {text}\n")
     if bad:
-        names = ", ".join(o.cell for o in bad[:10]) + (" ..." if len(bad) > 10 else "")
-        sys.stderr.write(
-            f"error: {args.layout}: {len(bad)} of {len(outcomes)} cells could not be analysed "
-            f"(see \"error\" in the JSON report): {names}; first: {bad[0].error}\n"
-        )
+        names = listing([o.cell for o in bad], 5)
+        line = InputError(args.layout, f"{len(bad)} of {len(outcomes)} cells could not be analysed "
+                                       f"(see \"error\" in the JSON report): {names}; first: {bad[0].error}").line()
+        sys.stderr.write(f"error: {line}\n")
         return 2
     return 1 if report["status"] == "fail" else 0

@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from extract.errors import InputError
+from extract.errors import InputError, escaped
 
 __all__ = ["main", "build_parser"]
 
@@ -20,7 +20,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse with a one-line ``error:`` report and exit status 2."""
 
     def error(self, message):  # noqa: D102
-        sys.stderr.write(f"error: {self.prog}: {message} (see {self.prog} --help)\n")
+        sys.stderr.write(f"error: {self.prog}: {escaped(message)[:200]} (see {self.prog} --help)\n")
         raise SystemExit(2)
 
 
@@ -97,19 +97,101 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _Stdout:
+    """Standard output that fails as an input error: closed, full or gone
+    becomes one ``error: <stdout>: ...`` line, not an internal error.  A
+    reader that went away (a closed pipe) stays a BrokenPipeError."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def _fail(self, exc) -> InputError:
+        return InputError("<stdout>", f"cannot write to standard output: {getattr(exc, 'strerror', None) or exc}")
+
+    def write(self, text):
+        if self._stream is None:
+            raise InputError("<stdout>", "cannot write to standard output: it is closed")
+        try:
+            return self._stream.write(text)
+        except BrokenPipeError:
+            raise
+        except (OSError, ValueError) as exc:
+            raise self._fail(exc) from None
+
+    def flush(self):
+        if self._stream is None:
+            return
+        try:
+            self._stream.flush()
+        except BrokenPipeError:
+            raise
+        except (OSError, ValueError) as exc:
+            raise self._fail(exc) from None
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
+class _Stderr:
+    """Standard error that never raises: when it is closed or full the
+    message is lost, but the exit status still tells."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def write(self, text):
+        try:
+            return self._stream.write(text) if self._stream is not None else len(text)
+        except (OSError, ValueError, AttributeError):
+            return len(text)
+
+    def flush(self):
+        try:
+            if self._stream is not None:
+                self._stream.flush()
+        except (OSError, ValueError):
+            pass
+
+    def isatty(self):
+        try:
+            return bool(self._stream is not None and self._stream.isatty())
+        except (OSError, ValueError):
+            return False
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
+    saved = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = _Stdout(sys.stdout), _Stderr(sys.stderr)
+    try:
+        code = _main(argv)
+        try:
+            sys.stdout.flush()
+        except InputError as exc:
+            sys.stderr.write(f"error: {exc.line()}\n")
+            code = 2
+        except BrokenPipeError:
+            pass
+        return code
+    finally:
+        sys.stdout, sys.stderr = saved
+
+
+def _main(argv: list[str] | None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:
-        return int(exc.code or 0)
+        return int(exc.code or 0) if not isinstance(exc.code, str) else 2
     try:
         from analyze.cli import commands
 
         return getattr(commands, f"run_{args.command}")(args)
     except InputError as exc:
-        sys.stdout.flush()
+        _flush_quietly()
         sys.stderr.write(f"error: {exc.line()}\n")
         return 2
     except KeyboardInterrupt:
@@ -117,10 +199,22 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     except BrokenPipeError:
         return 0
-    except Exception as exc:  # a bug: still one line, never a traceback
-        name = getattr(args, "layout", None) or getattr(args, "tech", None) or getattr(args, "command", "dynshare")
-        sys.stderr.write(f"error: {name}: internal error ({type(exc).__name__}: {exc}); please report it\n")
+    except MemoryError:
+        name = escaped(getattr(args, "layout", None) or getattr(args, "tech", None) or "dynshare")
+        sys.stderr.write(f"error: {name}: out of memory (the input is too large for this machine; "
+                         "see the work limits in the README)\n")
         return 2
+    except Exception as exc:  # a bug: still one line, never a traceback
+        what = " ".join(f"{type(exc).__name__}: {exc}".split())[:160]
+        sys.stderr.write(f"error: dynshare {args.command}: internal error ({what}); please report it\n")
+        return 2
+
+
+def _flush_quietly() -> None:
+    try:
+        sys.stdout.flush()
+    except (InputError, OSError):
+        pass
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -18,6 +18,7 @@ from __future__ import annotations
 import html
 
 from analyze.report.html_compare import compare_html
+from analyze.report.json_report import input_name
 from analyze.report.html_page import (fix_action, flags_table, fmt_loc, fmt_v, layout_figure, page, pattern_text, props_table,
                                stage_kind, status_html, table)
 from analyze.report.svg_layout import MAX_SHAPES, Mark
@@ -263,7 +264,7 @@ def check_html(circuit, tech, recognition, results, *, constraints=None, max_pat
     marks, keep = _marks(results, chosen)
     head = [f"<h1>Charge sharing in cell {html.escape(circuit.cell)}</h1>",
             f"<p>Process {html.escape(tech.name)}, VDD {tech.vdd:g} V, guard {tech.guard:g} V. "
-            f"{'Layout' if circuit.shapes else 'Netlist'} <code>{html.escape(circuit.source or '–')}</code>: "
+            f"{'Layout' if circuit.shapes else 'Netlist'} <code>{html.escape(input_name(circuit.source) or '–')}</code>: "
             f"{len(circuit.devices)} transistors, {len(circuit.nets)} nets.</p>"]
     if recognition.clock_note:
         head.append(f"<p>Clock: {html.escape(recognition.clock_note)}.</p>")

@@ -15,6 +15,7 @@ import html
 
 from analyze.report.html_page import (fix_action, flags_table, fmt_v, layout_figure, page, pattern_text, stage_kind, status_html,
                                table)
+from analyze.report.json_report import input_name
 from analyze.report.svg_layout import MAX_SHAPES, Mark
 from analyze.report.svg_plots import paired_bars_svg
 
@@ -147,8 +148,8 @@ def compare_html(comparison, *, max_shapes: int = MAX_SHAPES) -> str:
     post, pre, tech = c.post, c.pre, c.tech
     body = [f"<h1>Pre-layout against post-layout: cell {html.escape(post.cell)}</h1>",
             f"<p>Process {html.escape(tech.name)}, VDD {tech.vdd:g} V, guard {tech.guard:g} V. "
-            f"Schematic <code>{html.escape(pre.source or '–')}</code>, layout "
-            f"<code>{html.escape(post.source or '–')}</code>.</p>"]
+            f"Schematic <code>{html.escape(input_name(pre.source) or '–')}</code>, layout "
+            f"<code>{html.escape(input_name(post.source) or '–')}</code>.</p>"]
     body += [f'<p class="note">{html.escape(n)}</p>' for n in getattr(c, "notes", [])]
     if c.stages:
         failed = sum(sc.post is not None and sc.post.status == "fail" for sc in c.stages)

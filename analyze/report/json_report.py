@@ -8,11 +8,14 @@ files.
 from __future__ import annotations
 
 import json
+import os
+import math
 
 from extract.circuit import Circuit
+from extract.errors import InputError
 from extract.writers.numbers import tool_version
 
-__all__ = [
+__all__ = ["input_name", 
     "rounded",
     "loc_json",
     "header",
@@ -25,6 +28,18 @@ __all__ = [
     "stage_json",
     "dumps",
 ]
+
+
+def input_name(path: str | None) -> str | None:
+    """How a report names an input file: its file name alone, so that a
+    report does not depend on the folder the command ran in.
+
+    >>> input_name("../cells/DYN_NAND3.sp"), input_name("/abs/lib.gds"), input_name(None)
+    ('DYN_NAND3.sp', 'lib.gds', None)
+    """
+    if not path:
+        return path
+    return os.path.basename(os.path.normpath(str(path))) or str(path)
 
 
 def rounded(x: float, nd: int = 6) -> float:
@@ -191,5 +206,34 @@ def simulation_json(sims) -> list[dict]:
 
 
 def dumps(report: dict) -> str:
-    """JSON text with a trailing newline, keys in insertion order."""
-    return json.dumps(report, indent=2, ensure_ascii=False) + "\n"
+    """JSON text with a trailing newline, keys in insertion order.
+
+    A NaN or an infinity is not JSON: it raises :class:`InputError` naming
+    the key path (the analysis refuses such numbers earlier, naming their
+    cause; this is the last guard).
+
+    >>> dumps({"a": [1.5]})
+    '{\\n  "a": [\\n    1.5\\n  ]\\n}\\n'
+    >>> dumps({"stages": [{"margin_v": float("nan")}]})
+    Traceback (most recent call last):
+    ...
+    extract.errors.InputError: report: stages[0].margin_v: is nan, not a finite number; no report is written
+    """
+    try:
+        return json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    except ValueError:  # only a non-finite float: find where, for the message
+        _refuse_non_finite(report, "")
+        raise
+
+
+def _refuse_non_finite(value, path: str) -> None:
+    """Walk a report (dicts, lists, numbers); iterative, O(size)."""
+    stack = [(value, path)]
+    while stack:
+        item, where = stack.pop()
+        if isinstance(item, float) and not math.isfinite(item):
+            raise InputError("report", f"is {item}, not a finite number; no report is written", where or "report")
+        if isinstance(item, dict):
+            stack.extend((v, f"{where}.{k}" if where else str(k)) for k, v in item.items())
+        elif isinstance(item, (list, tuple)):
+            stack.extend((v, f"{where}[{i}]") for i, v in enumerate(item))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from analyze.report.json_report import input_name
 from extract.circuit import Circuit
 
 __all__ = ["stage_block", "check_header", "couplings_on", "fmt_loc"]
@@ -23,7 +24,7 @@ def check_header(circuit: Circuit, tech, recognition) -> str:
     what = "no dynamic stage" if n == 0 else f"{n} dynamic stage{'s' if n != 1 else ''}"
     lines = [f"cell {circuit.cell}  (process {tech.name}, VDD {tech.vdd:g} V): {what}"]
     if not circuit.shapes and circuit.source:
-        lines.append(f"  from netlist {circuit.source}: {len(circuit.devices)} transistors, {len(circuit.nets)} nets")
+        lines.append(f"  from netlist {input_name(circuit.source)}: {len(circuit.devices)} transistors, {len(circuit.nets)} nets")
     if n and recognition.clock_note:
         lines.append(f"  clock: {recognition.clock_note}")
     if circuit.couplings:

@@ -48,6 +48,7 @@ True
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 from typing import Iterator
 
@@ -61,6 +62,7 @@ from analyze.physics.threshold import receiver_threshold
 from analyze.search.worstcase import worst_case
 from extract.circuit import Circuit
 from extract.tech import Tech
+from extract.errors import InputError
 
 __all__ = [
     "WorstCase",
@@ -143,6 +145,23 @@ def _prepared(circuit, stage, tech, constraints, precharged):
     return model, bind_blocks(model, stage_blocks(constraints, model.inputs))
 
 
+def _finite_or_refuse(stage: Stage, tech: Tech, threshold: float, wc) -> None:
+    """Refuse a result that is not a finite number: NaN compares false
+    with everything, so ``margin < guard`` would pass it.  The numbers come
+    from the tech file's ``[mos.*]`` tables and the node capacitances, so
+    the tech file is named as the cause."""
+    place = f"stage {stage.dynamic_node}"
+    if not math.isfinite(threshold):
+        raise InputError(tech.path or "tech", f"the receiver switching threshold is {threshold}, not a finite "
+                         "voltage: the mos.nmos/mos.pmos numbers (kp, vt0) give no answer", place)
+    if wc is not None:
+        for name in ("v_final", "v_final_linear"):
+            value = getattr(wc, name)
+            if not math.isfinite(value):
+                raise InputError(tech.path or "tech", f"{name} is {value}, not a finite voltage: the junction "
+                                 "numbers (cj, mj, pb) or the node capacitances give no answer", place)
+
+
 def analyze_stage(
     circuit: Circuit,
     stage: Stage,
@@ -173,16 +192,20 @@ def analyze_stage(
     :func:`analyze.search.patterns.count_counted`, flags by
     :func:`analyze.search.flags.find_flags` (failing stages only).
     """
-    model, choices = _prepared(circuit, stage, tech, constraints, precharged)
-    threshold = receiver_threshold(circuit, stage, tech)
-    found = worst_case(model, choices)
-    wc = None if found is None else model.outcome(found.values, found.component)
+    try:
+        model, choices = _prepared(circuit, stage, tech, constraints, precharged)
+        threshold = receiver_threshold(circuit, stage, tech)
+        found = worst_case(model, choices)
+        wc = None if found is None else model.outcome(found.values, found.component)
+    except (ZeroDivisionError, OverflowError, ValueError) as exc:
+        if isinstance(exc, ValueError) and "nan" not in str(exc).lower():
+            raise
+        raise InputError(tech.path or "tech", "the charge-sharing solution is not a finite number with "
+                         "these mos.nmos/mos.pmos numbers and node capacitances", f"stage {stage.dynamic_node}") from None
     counted = count_counted(model, choices)
     physics, physics_note = "level-1 (tech file)", None
     if tech.models is not None and not precharged:
         from analyze.search.foundry import EXHAUSTIVE, RANKED, foundry_worst_case
-
-        from extract.errors import InputError
 
         if counted is not None and counted <= EXHAUSTIVE:
             candidates, chosen = list(iter_counted_patterns(circuit, stage, tech, constraints)), None
@@ -206,6 +229,7 @@ def analyze_stage(
     v = model.to_volts(model.vdd) if wc is None else wc.v_final
     n_type = stage.polarity == "n"
     margin = v - threshold if n_type else threshold - v
+    _finite_or_refuse(stage, tech, threshold, wc)
     status = "fail" if margin < tech.guard else "pass"
     flags, note = [], None
     if status == "fail":

@@ -185,15 +185,18 @@ def load_constraints(path: str) -> Constraints:
     InputError
         File missing or unreadable, not TOML (naming the line), or a bad key.
     """
+    from extract.inputfile import read_input
+    from extract.limits import MAX_TOML_BYTES, check_toml_depth
+
+    raw = read_input(path, "constraints file", MAX_TOML_BYTES)
     try:
-        with open(path, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(path, f"cannot read: {exc.strerror or exc}") from None
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise InputError(path, "not UTF-8 text (TOML must be UTF-8)", f"line {line}") from None
+    check_toml_depth(text, path)
     try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputError(path, "not UTF-8 text") from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         line = _TOML_LINE.search(msg)

@@ -6,14 +6,17 @@ x-reflection and array repetitions; paths become polygons; labels move
 with their cell), and every coordinate is converted to µm using the
 file's own user unit, then snapped to the file's database grid.
 
-Problems — a missing or unreadable file, a truncated or corrupt stream, a
+A GDSII stream is checked against the record grammar first
+(:mod:`extract.layout.gdsii`), so gdstk only reads well-formed streams; an
+OASIS file is read once in a forked child first, so that a native crash
+becomes an error.  Problems — a missing or unreadable file, a truncated or
+corrupt stream, a
 reference cycle, a reference to a cell that is not in the file, a cell
 name that does not exist — raise :class:`extract.errors.InputError`.
 """
 
 from __future__ import annotations
 
-import math
 import os
 import sys
 import tempfile
@@ -23,6 +26,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from extract.errors import InputError
+from extract.inputfile import read_input
+from extract.limits import MAX_LABELS, MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
+from extract.layout.gdsii import check_gds_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
 
@@ -67,8 +73,14 @@ class _QuietNative:
     gdstk reads, so that a bad file yields one clean line from us."""
 
     def __enter__(self):
-        sys.stderr.flush()
-        self._saved = os.dup(2)
+        try:
+            sys.stderr.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+        try:
+            self._saved = os.dup(2)
+        except OSError:  # standard error is closed: nothing to redirect
+            self._saved = None
         self._tmp = tempfile.TemporaryFile()
         os.dup2(self._tmp.fileno(), 2)
         self._warn = warnings.catch_warnings(record=True)
@@ -78,75 +90,19 @@ class _QuietNative:
 
     def __exit__(self, *exc):
         self._warn.__exit__(*exc)
-        sys.stderr.flush()
-        os.dup2(self._saved, 2)
-        os.close(self._saved)
+        try:
+            sys.stderr.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+        if self._saved is None:
+            os.close(2)
+        else:
+            os.dup2(self._saved, 2)
+            os.close(self._saved)
         self._tmp.seek(0)
         self.native = self._tmp.read().decode("utf-8", "replace")
         self._tmp.close()
         return False
-
-
-def _check_gds_stream(path: str, data: bytes) -> None:
-    """Walk the GDSII record structure before gdstk sees it.
-
-    Every record starts with a 2-byte big-endian length (even, at least 4)
-    and a record type; the stream must start with HEADER (0x00) and reach
-    ENDLIB (0x04).  This catches truncated and corrupt files with the byte
-    offset of the bad record.
-    """
-    n = len(data)
-    pos = 0
-    first = True
-    while pos + 4 <= n:
-        length = int.from_bytes(data[pos : pos + 2], "big")
-        rtype = data[pos + 2]
-        if length == 0 and not first:
-            # Zero padding after ENDLIB is allowed; anywhere else is corrupt.
-            break
-        if length < 4 or length % 2:
-            raise InputError(path, f"corrupt GDSII record (length {length})", f"byte {pos}")
-        if first and rtype != 0x00:
-            raise InputError(path, "not a GDSII stream (no HEADER record)", "byte 0")
-        if pos + length > n:
-            raise InputError(path, "truncated GDSII file (record runs past the end)", f"byte {pos}")
-        first = False
-        if rtype == 0x03:  # UNITS: two 8-byte reals
-            _check_units(path, data[pos + 4 : pos + length], pos)
-        if rtype == 0x04:  # ENDLIB
-            return
-        pos += length
-    raise InputError(path, "truncated GDSII file (no ENDLIB record)", f"byte {pos}")
-
-
-def gds_real(b: bytes) -> float:
-    """Decode an 8-byte GDSII real (sign, excess-64 base-16 exponent,
-    56-bit mantissa; GDSII Stream Format manual, "Real numbers").
-
-    >>> gds_real(bytes([0x41, 0x10, 0, 0, 0, 0, 0, 0]))
-    1.0
-    >>> gds_real(bytes([0x3E, 0x41, 0x89, 0x37, 0x4B, 0xC6, 0xA7, 0xEF]))  # 1e-3
-    0.001
-    >>> gds_real(bytes(8))
-    0.0
-    """
-    sign = -1.0 if b[0] & 0x80 else 1.0
-    exponent = (b[0] & 0x7F) - 64
-    mantissa = int.from_bytes(b[1:8], "big") / float(1 << 56)
-    return sign * mantissa * 16.0**exponent
-
-
-def _check_units(path: str, body: bytes, pos: int) -> None:
-    """Refuse a UNITS record whose database unit is not a usable length."""
-    if len(body) != 16:
-        raise InputError(path, "corrupt UNITS record", f"byte {pos}")
-    per_user, metres = gds_real(body[:8]), gds_real(body[8:])
-    if not (per_user > 0 and math.isfinite(per_user)):
-        raise InputError(path, f"UNITS record: database unit in user units is {per_user:g}", f"byte {pos}")
-    if not (1e-13 <= metres <= 1e-3):
-        raise InputError(
-            path, f"UNITS record: database unit of {metres:g} m is not a usable length (1e-13 to 1e-3 m)", f"byte {pos}"
-        )
 
 
 def _probe(path: str, is_oas: bool) -> None:
@@ -187,20 +143,13 @@ def _probe(path: str, is_oas: bool) -> None:
 def _load_library(path: str):
     import gdstk
 
-    if not os.path.exists(path):
-        raise InputError(path, "file not found")
-    if os.path.isdir(path):
-        raise InputError(path, "is a directory, not a layout file")
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise InputError(path, f"cannot read: {exc.strerror}") from None
+    data = read_input(path, "layout file", MAX_LAYOUT_BYTES)
     ext = os.path.splitext(path)[1].lower()
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
-        _check_gds_stream(path, data)
-    _probe(path, is_oas)
+        check_gds_grammar(path, data)
+    else:
+        _probe(path, is_oas)  # no grammar check for OASIS yet: a native crash is caught in a child
     with _QuietNative() as quiet:
         try:
             lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)
@@ -213,7 +162,7 @@ def _load_library(path: str):
         raise InputError(path, f"cannot read {kind} file: {why}")
     if not (lib.precision > 0 and 1e-13 <= lib.precision <= 1e-3):
         raise InputError(path, f"database unit of {lib.precision:g} m is not a usable length (1e-13 to 1e-3 m)")
-    return lib
+    return lib, is_oas
 
 
 def _reference_graph(path, lib) -> dict[str, list[str]]:
@@ -228,13 +177,16 @@ def _reference_graph(path, lib) -> dict[str, list[str]]:
 
 
 #: Most shapes a cell may flatten to (override with DYNSHARE_MAX_SHAPES).
-MAX_FLAT_SHAPES = 20_000_000
+MAX_FLAT_SHAPES = MAX_SHAPES
 
 
-def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
-    """Number of shapes ``start`` flattens to: own polygons and paths plus,
-    per reference, the child's count times its repetition count.
-    Memoised over cells, O(cells + references)."""
+def _flat_count(lib, graph: dict[str, list[str]], start: str, repeated: bool = False,
+                labels_only: bool = False) -> int:
+    """Number of shapes ``start`` flattens to: own polygons, paths and
+    labels (each times its own repetition count: OASIS repeats single
+    elements) plus, per reference, the child's count times its repetition
+    count.  With ``labels_only``, the labels alone.  Memoised over cells,
+    O(cells + references + elements)."""
     cells = {c.name: c for c in lib.cells}
     memo: dict[str, int] = {}
 
@@ -252,7 +204,8 @@ def _flat_count(lib, graph: dict[str, list[str]], start: str) -> int:
             stack.pop()
             if name not in memo:
                 c = cells[name]
-                n = len(c.polygons) + len(c.paths)
+                own = c.labels if labels_only else (*c.polygons, *c.paths, *c.labels)
+                n = sum(reps(e) for e in own) if repeated else len(own)
                 for ref in c.references:
                     child = ref.cell if isinstance(ref.cell, str) else ref.cell.name
                     n += memo[child] * reps(ref)
@@ -309,6 +262,7 @@ class LayoutFile:
     path: str
     lib: object
     graph: dict[str, list[str]]
+    oasis: bool = False  #: OASIS repeats single elements; GDSII does not
 
     @property
     def cells(self) -> list[str]:
@@ -318,8 +272,8 @@ class LayoutFile:
 
 def open_layout(path: str) -> LayoutFile:
     """Read a GDSII or OASIS file (see :func:`read_layout` for the errors)."""
-    lib = _load_library(path)
-    return LayoutFile(path, lib, _reference_graph(path, lib))
+    lib, is_oas = _load_library(path)
+    return LayoutFile(path, lib, _reference_graph(path, lib), is_oas)
 
 
 def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
@@ -336,12 +290,18 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     if cell not in graph:
         raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
     _check_tree(path, graph, cell)
-    limit = int(os.environ.get("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES))
-    count = _flat_count(lib, graph, cell)
+    limit = env_limit("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES)
+    count = _flat_count(lib, graph, cell, layout.oasis)
     if count > limit:
         raise InputError(
-            path, f"flattens to {count:,} shapes, more than the limit of {limit:,} (set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
+            path, f"flattens to {count:,} shapes (polygons, paths and labels), more than the limit of {limit:,} "
+            "(set DYNSHARE_MAX_SHAPES)", f"cell {cell}"
         )
+    label_limit = env_limit("DYNSHARE_MAX_LABELS", MAX_LABELS)
+    labels = _flat_count(lib, graph, cell, layout.oasis, labels_only=True)
+    if labels > label_limit:
+        raise InputError(path, f"flattens to {labels:,} text labels, more than the limit of {label_limit:,} "
+                               "(set DYNSHARE_MAX_LABELS)", f"cell {cell}")
 
     top = next(c for c in lib.cells if c.name == cell)
     grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3

@@ -73,7 +73,11 @@ Bulk
 Notes
 -----
 One recursive walk over the instance tree; every element is visited once
-per instance, so the cost is linear in the flattened size.
+per instance, so the cost is linear in the flattened size.  Devices (after
+``M``/``MULT``/``NF``) and instances are counted as the walk goes and the
+walk stops at ``DYNSHARE_MAX_DEVICES`` of either (default 2 000 000), and
+at subcircuits nested deeper than 200 (:mod:`extract.limits`), before any
+of that work is done.
 """
 
 from __future__ import annotations
@@ -83,6 +87,7 @@ from dataclasses import dataclass
 
 from extract.circuit import CapParts, Circuit, Coupling, Device, JunctionGeometry, Net
 from extract.errors import Finding, InputError
+from extract.limits import MAX_DEVICES, MAX_SUBCKT_DEPTH, env_limit
 from extract.capacitance import gate_parts, junction_parts, overlap_per_side
 from extract.netlist.library import Library, Subckt
 from extract.netlist.expressions import ExpressionError, value_of
@@ -177,6 +182,9 @@ class _Builder:
         else:
             self.scale = 1e-6 if lib.dialect == "cdl" else 1.0
         self.shorts: list[tuple[str, str]] = []
+        #: devices and instances so far, against DYNSHARE_MAX_DEVICES
+        self.max_devices = env_limit("DYNSHARE_MAX_DEVICES", MAX_DEVICES)
+        self.n_devices = self.n_instances = 0
         self.ignore = {n.lower() for n in tech.netlist_ignore}
         self.left_out: Counter = Counter()
         self.couplings: dict[tuple[str, str], list] = {}
@@ -305,6 +313,10 @@ class _Builder:
         m = self.count(vals.get("m", 1), card.place, f"{name}: M")
         m *= self.count(vals.get("mult", 1), card.place, f"{name}: MULT")
         nf = self.count(vals.get("nf", 1), card.place, f"{name}: NF")
+        self.n_devices += m * nf
+        if self.n_devices > self.max_devices:
+            raise self.error(f"{name}: the cell expands to more than {self.max_devices:,} devices (M, MULT, NF and "
+                             "X multipliers applied; set DYNSHARE_MAX_DEVICES)", card.place)
         d, g, s = (self.net(n, prefix, ports) for n in pos[1:4])
         self.mos.append(_Mos(name, self.models[model.lower()], model, d, g, s,
                              given.pop("w"), given.pop("l"), given, m * nf, nf))
@@ -361,6 +373,9 @@ class _Builder:
         if sub.name.lower() in stack:
             chain = " → ".join([*stack, sub.name.lower()])
             raise self.error(f"{name}: recursive instantiation {chain}", card.place)
+        if len(stack) >= MAX_SUBCKT_DEPTH:
+            raise self.error(f"{pos[0]}: subcircuits nest more than {MAX_SUBCKT_DEPTH} deep "
+                             f"({stack[0]} → {stack[1]} → ... → {sub.name})", card.place)
         nodes = pos[1:-1]
         if len(nodes) != len(sub.ports):
             raise self.error(
@@ -379,6 +394,10 @@ class _Builder:
                 have = ", ".join(sorted(declared)) or "none"
                 raise self.error(f"{name}: {sub.name} has no parameter {written} (it has: {have})", card.place)
         child_ports = {p.lower(): self.net(n, prefix, ports) for p, n in zip(sub.ports, nodes)}
+        self.n_instances += copies
+        if self.n_instances > self.max_devices:
+            raise self.error(f"{name}: the cell expands to more than {self.max_devices:,} subcircuit instances "
+                             "(X multipliers applied; set DYNSHARE_MAX_DEVICES)", card.place)
         for j in range(copies):
             tag = pos[0] if copies == 1 else f"{pos[0]}.{j + 1}"
             self.instance(sub, f"{prefix}{tag}/", child_ports, overrides, (*stack, sub.name.lower()))
@@ -499,6 +518,78 @@ class _Builder:
                        self.findings, source=self.path, couplings=couplings)
 
 
+def _literal(text: str) -> float | None:
+    """A multiplier written as a plain number, else None (an expression)."""
+    try:
+        return value_of(text, {})
+    except (ExpressionError, ValueError, OverflowError):
+        return None
+
+
+def expansion_floor(lib: Library, top: Subckt, devices: set[str] | None = None) -> tuple[int, int]:
+    r"""At least how many (devices, instances) ``top`` expands to, before any
+    parameter is evaluated.
+
+    Multipliers written as plain numbers (``M=1000``, ``NF=4``) are
+    applied; one given by an expression counts as 1, so the result is a
+    lower bound of the real expansion and a cell whose floor already passes
+    the limit is refused before the walk starts.
+
+    Examples
+    --------
+    >>> from extract.netlist.library import parse_library
+    >>> text = ".subckt L a\nM1 a a 0 0 n W=1u L=1u M=10 NF=2\n.ends\n"
+    >>> text += ".subckt T a\nX1 a L M=1000\nX2 a L\n.ends\n"
+    >>> lib = parse_library(text, "t.sp")
+    >>> expansion_floor(lib, lib.subckts["t"])
+    (20020, 1001)
+
+    Notes
+    -----
+    Post-order over the subcircuit graph without recursion, memoised:
+    O(elements of the file).  Instances of unknown subcircuits and cycles
+    count 0 here (the walk reports them).
+    """
+    devices = devices or set()
+    memo: dict[str, tuple[int, int]] = {}
+    stack = [(top.name.lower(), False)]
+    active: set[str] = set()
+    while stack:
+        key, done = stack.pop()
+        sub = lib.subckts.get(key)
+        if sub is None or key in memo:
+            continue
+        if not done:
+            if key in active:
+                continue
+            active.add(key)
+            stack.append((key, True))
+            for _, pos, _ in sub.elements:
+                child = pos[-1].lower()
+                if pos[0][:1] in "xX" and child in lib.subckts and child not in memo and child not in active:
+                    stack.append((child, False))
+            continue
+        active.discard(key)
+        n_dev = n_inst = 0
+        for _, pos, params in sub.elements:
+            mult = 1
+            for k, _, text in params:
+                if k in ("m", "mult", "nf"):
+                    v = _literal(text)
+                    if v is not None and 1 <= v <= 1e15:
+                        mult *= int(v)
+            letter = pos[0][:1].lower()
+            child = pos[-1].lower()
+            if letter == "m" or (letter == "x" and child in devices):
+                n_dev += mult
+            elif letter == "x" and child in memo:
+                d, i = memo[child]
+                n_dev += mult * d
+                n_inst += mult * (i + 1)
+        memo[key] = (n_dev, n_inst)
+    return memo.get(top.name.lower(), (0, 0))
+
+
 def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:
     """Elaborate subcircuit ``top`` of ``lib`` into a flat circuit.
 
@@ -522,6 +613,12 @@ def flatten(lib: Library, top: Subckt, tech: Tech, path: str) -> Circuit:
         Any value, model, node-count or hierarchy error, naming the line.
     """
     b = _Builder(lib, tech, path)
+    n_dev, n_inst = expansion_floor(lib, top, set(b.devices))
+    if max(n_dev, n_inst) > b.max_devices:
+        what = "devices" if n_dev > b.max_devices else "subcircuit instances"
+        raise InputError(path, f"{top.name} expands to at least {max(n_dev, n_inst):,} {what} (M, MULT, NF and X "
+                               f"multipliers applied), more than the limit of {b.max_devices:,} "
+                               "(set DYNSHARE_MAX_DEVICES)", f"line {top.line}")
     ports: dict[str, str] = {}
     for port in top.ports:
         ports[port.lower()] = b.net(port, "", {})

@@ -18,6 +18,8 @@ import re
 from dataclasses import dataclass, field
 
 from extract.errors import Finding, InputError
+from extract.inputfile import read_input
+from extract.limits import MAX_NETLIST_BYTES
 from extract.netlist.cards import Card, read_cards, split_fields
 
 __all__ = ["Subckt", "Library", "parse_library", "choose_top"]
@@ -209,7 +211,7 @@ _MODEL_LINE = re.compile(rb"^[ \t]*\.model\b", re.I | re.M)
 _SCALE = re.compile(r"\bscale\s*=\s*(\S+)", re.I)
 #: Included files larger than this are refused (a netlist library of a
 #: whole cell family is a few MB; a bigger include is a mistake).
-MAX_INCLUDE_BYTES = 256 * 1024 * 1024
+MAX_INCLUDE_BYTES = MAX_NETLIST_BYTES
 #: How deep includes may nest.
 MAX_INCLUDE_DEPTH = 32
 
@@ -261,19 +263,9 @@ class _Parser:
             raise InputError(path, f"{card.keyword} {target}: includes nest deeper than {MAX_INCLUDE_DEPTH}",
                              card.place)
         try:
-            if os.path.isdir(full):
-                raise InputError(path, f"{card.keyword} {target}: is a directory", card.place)
-            size = os.path.getsize(full)
-            if size > MAX_INCLUDE_BYTES:
-                raise InputError(path, f"{card.keyword} {target}: {size} bytes, more than a netlist "
-                                       f"library can be ({MAX_INCLUDE_BYTES} bytes)", card.place)
-            with open(full, "rb") as fh:
-                data = fh.read()
-        except FileNotFoundError:
-            raise InputError(path, f"{card.keyword} {target}: file not found ({full})", card.place) from None
-        except OSError as exc:
-            raise InputError(path, f"{card.keyword} {target}: cannot read: {exc.strerror or exc}",
-                             card.place) from None
+            data = read_input(full, "netlist library", MAX_INCLUDE_BYTES)
+        except InputError as exc:  # the including line is the place
+            raise InputError(path, f"{card.keyword} {target}: {exc.message} ({full})", card.place) from None
         shown = os.path.relpath(full) if not os.path.isabs(target) else full
         if section is not None:
             data = _lib_section(data, section, shown, card.place)

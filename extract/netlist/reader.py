@@ -124,16 +124,11 @@ def read_netlist_library(path) -> Library:
     InputError
         File missing or unreadable; any structural error, with its line.
     """
+    from extract.inputfile import read_input
+    from extract.limits import MAX_NETLIST_BYTES
+
     path = str(path)
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except FileNotFoundError:
-        raise InputError(path, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(path, "is a directory, not a netlist") from None
-    except OSError as exc:
-        raise InputError(path, f"cannot read: {exc.strerror or exc}") from None
+    data = read_input(path, "netlist", MAX_NETLIST_BYTES)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:

@@ -185,12 +185,12 @@ def test_explicit_optional_values_are_kept():
 
 
 def test_range_edges_that_are_allowed():
-    # Source: README tech-file reference — mj, mjsw in [0, 1) so 0 is allowed; cj etc. >= 0 so 0 is
-    # allowed; guard in [0, vdd).
-    text = edited({"mos.nmos.mj": 0, "mos.nmos.mjsw": 0.999, "mos.nmos.cj": 0,
+    # Source: README tech-file reference — mj, mjsw in [0, 0.99] so both ends are allowed; cj etc.
+    # >= 0 so 0 is allowed; guard in [0, vdd).
+    text = edited({"mos.nmos.mj": 0, "mos.nmos.mjsw": 0.99, "mos.nmos.cj": 0,
                    "mos.pmos.gamma": 0, "check.guard": 1.19})
     tech = parse_tech(text, "t.toml")
-    assert (tech.mos["nmos"].mj, tech.mos["nmos"].mjsw, tech.guard) == (0.0, 0.999, 1.19)
+    assert (tech.mos["nmos"].mj, tech.mos["nmos"].mjsw, tech.guard) == (0.0, 0.99, 1.19)
 
 
 def test_load_tech_reads_without_writing(tmp_path):
@@ -425,16 +425,17 @@ def accepted_iff(key: str, value: float, allowed: bool, read) -> None:
 @settings(max_examples=60, deadline=None)
 @given(st.floats(allow_nan=True, allow_infinity=True))
 def test_vdd_accepted_exactly_when_finite_and_positive(vdd):
-    # Source: README tech-file reference — vdd <= 0 is impossible; and a supply must be a finite number.
-    accepted_iff("process.vdd", vdd, math.isfinite(vdd) and vdd > 0, lambda t: t.vdd)
+    # Source: README tech-file reference — vdd <= 0 is impossible, a supply must be a finite number,
+    # and a real process's supply is 0.1 V to 50 V (the README's plausible range).
+    accepted_iff("process.vdd", vdd, math.isfinite(vdd) and 0.1 <= vdd <= 50, lambda t: t.vdd)
 
 
 @settings(max_examples=60, deadline=None)
 @given(st.floats(min_value=-2, max_value=2))
 def test_grading_exponent_accepted_exactly_in_unit_interval(mj):
     # Source: README tech-file reference — mj outside [0, 1) is impossible (the SPICE depletion
-    # charge formula divides by 1 - mj).
-    accepted_iff("mos.pmos.mj", mj, 0 <= mj < 1, lambda t: t.mos["pmos"].mj)
+    # charge formula divides by 1 - mj), and above 0.99 beyond any real junction (plausible range).
+    accepted_iff("mos.pmos.mj", mj, 0 <= mj <= 0.99, lambda t: t.mos["pmos"].mj)
 
 
 @settings(max_examples=60, deadline=None)
@@ -523,3 +524,26 @@ def test_characterize_input_may_leave_out_mos_only_with_models():
         parse_tech(edited({"mos": DELETE}), "t.toml", mos_optional=True)
     half = parse_tech(edited({**_MODELS, "mos.pmos": DELETE}), "t.toml", mos_optional=True)
     assert list(half.mos) == ["nmos"]
+
+
+# ------------------------------------------------------ plausible ranges (issue 13)
+
+@pytest.mark.parametrize("key, value", [
+    # the issue's inputs that ended in NaN verdicts or internal errors
+    ("mos.pmos.kp", 5e-324), ("mos.nmos.kp", 1e308), ("mos.nmos.pb", 1e-308), ("mos.nmos.cox", 1e308),
+    # each side of a few ranges (README tech-file tables: "plausible" column)
+    ("mos.nmos.vt0", 6.0), ("mos.pmos.vt0", -0.001), ("mos.nmos.phi", 3.5), ("mos.nmos.cj", 101.0),
+    ("mos.pmos.pbsw", 0.04), ("layers.metal1.fringe", 200.0), ("process.vdd", 0.05),
+])
+def test_implausible_numbers_are_refused(key, value):
+    # Source: README tech-file reference, "Plausible ranges" (a real process's numbers); every
+    # value here is beyond them by hand comparison.
+    err = error_of(edited({key: value}))
+    assert err.place == key and "outside what a real process has" in err.message
+
+
+def test_plausible_edges_are_accepted():
+    # Source: README plausible ranges — both ends are inclusive.
+    tech = parse_tech(edited({"mos.nmos.kp": 1e4, "mos.pmos.kp": 0.1, "mos.nmos.pb": 5.0,
+                              "mos.pmos.vt0": -5.0, "process.vdd": 50}), "t.toml")
+    assert (tech.mos["nmos"].kp, tech.mos["pmos"].kp, tech.mos["pmos"].vt0) == (1e4, 0.1, -5.0)

@@ -3,10 +3,13 @@ the stage result.  Hand calculations written out per test."""
 
 from __future__ import annotations
 
+import dataclasses
+
 import pytest
 
 from analyze.search.analysis import analyze_stage, evaluate_pattern, iter_counted_patterns
 from analyze.search.constraints import parse_constraints
+from extract.errors import InputError
 from sharing_circuits import NMOS, domino, make_tech
 
 TECH = make_tech()
@@ -107,3 +110,22 @@ def test_held_gates_and_other_rails():
     assert res.counted_patterns == 3
     assert len(list(iter_counted_patterns(circuit, stage, TECH))) == 3
     assert evaluate_pattern(circuit, stage, TECH, {"A": 0, "B": 0, "C": 1}) is None
+
+
+# ------------------------------------------------ no NaN verdict (issue 13)
+
+@pytest.mark.parametrize("nmos, pmos, what", [
+    ({"kp": float("nan")}, {}, "switching threshold"),   # NaN kp: the square-law ratio is NaN
+    ({"kp": float("inf")}, {}, "switching threshold"),   # r = inf, VM = inf/inf = NaN
+    ({"vt0": float("nan")}, {}, "not a finite number"),  # the pass limit VDD - VT is NaN
+    ({"pb": 1e-308}, {}, "not a finite number"),         # (1 + V/PB)^(1-M) overflows: NaN charge
+])
+def test_a_non_finite_result_is_an_error_never_a_pass(nmos, pmos, what):
+    # Source: README "Hostile and broken inputs" (a non-finite result is an error naming the cause);
+    # hand reasoning on the formulas of the README's charge-sharing model, one per case above.
+    # Tech objects made directly, past the tech-file checks that would refuse these numbers.
+    tech = dataclasses.replace(make_tech(nmos=nmos, pmos=pmos), path="t.toml")
+    circuit, stage = domino(tech, NAND3, {k: dict(v, nmos=(1.0, 3.0, 1.0)) for k, v in LIN.items()})
+    with pytest.raises(InputError) as err:
+        analyze_stage(circuit, stage, tech)
+    assert err.value.file == "t.toml" and err.value.place == "stage X" and what in err.value.message

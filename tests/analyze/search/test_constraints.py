@@ -64,7 +64,8 @@ def test_bad_files_name_the_place(tmp_path, text, place, words):
 
 
 def test_missing_and_binary_files(tmp_path):
-    with pytest.raises(InputError, match="cannot read"):
+    # Source: README "Hostile and broken inputs" — a missing file is "file not found" for every input.
+    with pytest.raises(InputError, match="file not found"):
         load_constraints(str(tmp_path / "nope.toml"))
     p = tmp_path / "b.toml"
     p.write_bytes(b"\xff\xfe\x00")

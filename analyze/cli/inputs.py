@@ -15,7 +15,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 from extract.circuit import Circuit
-from extract.errors import InputError
 
 __all__ = ["CellSource", "input_kind", "open_cells"]
 

@@ -23,7 +23,7 @@ from extract.circuit import Circuit
 from extract.errors import Finding, InputError
 from extract.layout.assemble import assemble
 from extract.layout.hierarchy import extract_hierarchical
-from extract.layout.reader import FlatLayout, LayoutFile, flatten_cell, open_layout, read_layout
+from extract.layout.reader import FlatLayout, LayoutFile, flatten_cell, open_layout
 from extract.layout.units import cell_units
 from extract.tech import Tech
 

@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import shapely
 
-from extract.capacitance import gate_parts, junction_parts, overlap_per_side, wire_parts
+from extract.capacitance import gate_parts, junction_parts, overlap_per_side
 from extract.circuit import JunctionGeometry
 from extract.errors import Finding
 from extract.layout.connectivity import Conductors, connect, label_hits

@@ -59,7 +59,6 @@ of flattened elements.
 from __future__ import annotations
 
 from extract.circuit import Circuit
-from extract.errors import InputError
 from extract.netlist.flatten import flatten
 from extract.netlist.library import Library, choose_top, parse_library
 from extract.tech import Tech

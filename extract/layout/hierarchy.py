@@ -41,7 +41,6 @@ the naming findings.
 from __future__ import annotations
 
 import math
-import os
 
 import numpy as np
 import shapely
@@ -52,7 +51,7 @@ from extract.circuit import Circuit
 from extract.errors import Finding
 from extract.layout.assemble import assemble
 from extract.layout.geometry import parts
-from extract.layout.reader import MAX_FLAT_SHAPES, LayoutFile, flatten_cell, top_cells
+from extract.layout.reader import LayoutFile, check_flat_size, flatten_cell, top_cells
 from extract.layout.units import cell_units, layer_shapes
 from extract.tech import Tech
 
@@ -205,16 +204,12 @@ def extract_hierarchical(layout: LayoutFile, tech: Tech, cell: str | None, wante
         cell = tops[0]
     if cell not in layout.graph:
         return None
+    check_flat_size(layout, cell)  # the limits hold before any work, whichever path runs
     placed = instances_of(layout, cell, wanted)
     if placed is None:
         return None
     names = list(placed)
     flats = [flatten_cell(layout, n, layers=wanted) for n in names]
-    # the flattened-size limit holds for either path: over it, the flat
-    # path reports it (its count, of every layer, is at least this one)
-    limit = int(os.environ.get("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES))
-    if sum(len(placed[n]) * sum(map(len, f.polygons.values())) for n, f in zip(names, flats)) > limit:
-        return None
     shapes = [layer_shapes(f, tech) for f in flats]
     units = [cell_units(f, tech, s) for f, s in zip(flats, shapes)]
     labels = [[(lab.text, lab.x, lab.y, lab.layer) for lab in f.labels] for f in flats]

@@ -276,19 +276,17 @@ def open_layout(path: str) -> LayoutFile:
     return LayoutFile(path, lib, _reference_graph(path, lib), is_oas)
 
 
-def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
-    """Flatten one cell of an opened file (see :func:`read_layout`)."""
+def check_flat_size(layout: LayoutFile, cell: str) -> None:
+    """Refuse ``cell`` before any work when it flattens to more shapes or
+    labels than the limits (both the flat and the hierarchical extraction
+    call it first).
+
+    Raises
+    ------
+    InputError
+        A reference cycle, or a limit passed (naming the count and the limit).
+    """
     path, lib, graph = layout.path, layout.lib, layout.graph
-    if cell is None:
-        tops = top_cells(graph)
-        if len(tops) != 1:
-            if not tops:
-                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
-            listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
-            raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
-        cell = tops[0]
-    if cell not in graph:
-        raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
     _check_tree(path, graph, cell)
     limit = env_limit("DYNSHARE_MAX_SHAPES", MAX_FLAT_SHAPES)
     count = _flat_count(lib, graph, cell, layout.oasis)
@@ -302,6 +300,22 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     if labels > label_limit:
         raise InputError(path, f"flattens to {labels:,} text labels, more than the limit of {label_limit:,} "
                                "(set DYNSHARE_MAX_LABELS)", f"cell {cell}")
+
+
+def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> FlatLayout:
+    """Flatten one cell of an opened file (see :func:`read_layout`)."""
+    path, lib, graph = layout.path, layout.lib, layout.graph
+    if cell is None:
+        tops = top_cells(graph)
+        if len(tops) != 1:
+            if not tops:
+                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
+            listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
+            raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
+        cell = tops[0]
+    if cell not in graph:
+        raise InputError(path, f"no cell named {cell!r} in the file", f"cell {cell}")
+    check_flat_size(layout, cell)
 
     top = next(c for c in lib.cells if c.name == cell)
     grid_um = lib.precision / 1e-6 if lib.precision > 0 else 1e-3

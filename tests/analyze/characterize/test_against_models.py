@@ -113,10 +113,11 @@ def test_gate_oxide_capacitance_is_near_eox_over_tox(fits):
         assert 0.8 * cox <= fitted[corner].nmos.params["cox"] <= cox
 
 
-def test_corners_order_as_measured_in_notes(fits):
+def test_corners_order_fast_typical_slow(fits):
     _, fitted = fits
-    # /work/sky130/NOTES.md section 4: Id(ff) > Id(tt) > Id(ss) for both
-    # devices; thresholds therefore order the other way.
+    # the corners' definition in the PDK (ff fast, ss slow devices; measured
+    # with ngspice in tests/analyze/simulator/test_models.py):
+    # Id(ff) > Id(tt) > Id(ss) for both devices; thresholds the other way.
     for kind in ("nmos", "pmos"):
         vt = [abs(getattr(fitted[c], kind).params["vt0"]) for c in ("ff", "tt", "ss")]
         assert vt == sorted(vt)

@@ -242,8 +242,16 @@ def simulate_stage(circuit: Circuit, result: StageResult, tech: Tech, constraint
             purpose = (f"simulation of stage {stage.dynamic_node} of {circuit.cell} at corner "
                        f"{corner or '(whole library)'}")
             jobs.append((sd, members, purpose, expect))
-        with ThreadPoolExecutor(max_workers=max(1, min(len(jobs), os.cpu_count() or 1))) as pool:
-            results = list(pool.map(lambda j: run_deck(j[0].text, j[2], expect=j[3], tables=[j[0].table]), jobs))
+        try:
+            with ThreadPoolExecutor(max_workers=max(1, min(len(jobs), os.cpu_count() or 1))) as pool:
+                results = list(pool.map(lambda j: run_deck(j[0].text, j[2], expect=j[3], tables=[j[0].table]),
+                                        jobs))
+        except InputError as exc:
+            if exc.file == "ngspice":  # the program itself is missing: say so as it is
+                raise
+            # name the input whose stage could not be simulated
+            raise InputError(circuit.source or circuit.cell, f"{exc.file}: {exc.message}",
+                             f"stage {stage.dynamic_node}, corner {corner or '(library)'}") from None
         first = jobs[0][0]
         vms = [results[0].scalar(name) for name in first.thresholds]
         if vms:

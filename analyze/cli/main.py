@@ -55,7 +55,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--constraints", metavar="FILE", help="input constraints (TOML)")
     p.add_argument("--json", metavar="OUT", help="write the JSON report ('-' for stdout)")
     p.add_argument("--html", metavar="OUT", help="write an HTML report")
-    p.add_argument("--all-cells", action="store_true", help="check every cell of the library LAYOUT")
+    p.add_argument("--all-cells", action="store_true", help="check every cell of the library INPUT (layout or netlist)")
     p.add_argument("--simulate", action="store_true",
                    help="also simulate the worst cases with ngspice and the tech file's [models]")
     p.add_argument("--corner", action="append", metavar="C",

@@ -36,7 +36,7 @@ O(devices × log(1/tolerance)).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.optimize import brentq
@@ -45,7 +45,8 @@ from analyze.physics.charge import node_charge
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
-__all__ = ["GateLevels", "gate_levels", "final_voltage_with_devices", "table_devices", "clock_setup"]
+__all__ = ["GateLevels", "ChargeContext", "charge_context", "gate_levels", "final_voltage_with_devices",
+           "table_devices", "clock_setup"]
 
 
 @dataclass(frozen=True)
@@ -63,11 +64,13 @@ def table_devices(circuit, stage) -> list:
     return [d for d in circuit.devices if d.drain in inner or d.source in inner]
 
 
-def gate_levels(circuit, stage, tech, inputs: dict, late: set) -> GateLevels:
+def gate_levels(circuit, stage, tech, inputs: dict, late: set, devices=None) -> GateLevels:
     """Gate levels (V) before and after the clock edge for a pattern.
 
     Parameters
     ----------
+    devices : list of Device, optional
+        :func:`table_devices` of the stage, when already known.
     inputs : dict of str to int
         The pattern.
     late : set of str
@@ -80,7 +83,7 @@ def gate_levels(circuit, stage, tech, inputs: dict, late: set) -> GateLevels:
     eval_clk = vdd if n_type else 0.0
     before, after = {}, {}
     clocked = set(stage.precharge) | set(stage.secondary_precharge.values())
-    for d in table_devices(circuit, stage):
+    for d in table_devices(circuit, stage) if devices is None else devices:
         role = circuit.nets[d.gate].role if d.gate in circuit.nets else tech.role_of(d.gate)
         if d.name in stage.keepers:
             level = vdd if d.type == "pmos" else 0.0  # keeper help left out: held off
@@ -105,12 +108,13 @@ def gate_levels(circuit, stage, tech, inputs: dict, late: set) -> GateLevels:
     return GateLevels(before, after)
 
 
-def clock_setup(circuit, stage, tech) -> dict:
+def clock_setup(circuit, stage, tech, devices=None) -> dict:
     """What the clock-edge measurement of
     :func:`analyze.physics.device_tables.stage_tables` needs: the devices on
     the dynamic node (clocked ones, receivers, the rest held off) and the
-    zero-bias capacitance of everything else on it."""
-    tdevs = table_devices(circuit, stage)
+    zero-bias capacitance of everything else on it (``devices``: the
+    stage's :func:`table_devices`, when already known)."""
+    tdevs = table_devices(circuit, stage) if devices is None else devices
     out = []
     for d in tdevs:
         if stage.dynamic_node not in (d.drain, d.source):
@@ -149,22 +153,65 @@ def _lumped_rest(net: Net | None, circuit, stage, tech, table_devs, receivers):
                 p = tech.mos[d.type]
                 gate -= p.cox * d.w_um * d.l_um
                 overlap -= 2 * p.cgo * d.w_um
-    from dataclasses import replace
-
     rest = Net(net.name, net.role, replace(parts, overlap=max(0.0, overlap), gate=max(0.0, gate),
                                            junction_gate_edge=0.0),
                junctions)
     return node_charge(rest, tech)
 
 
-def final_voltage_with_devices(circuit, stage, tech, tables, group: list[str], levels: GateLevels,
-                               start: dict, passes=()) -> float:
+@dataclass
+class ChargeContext:
+    """What the solver needs of one stage, prepared once for all its
+    patterns and cases (:func:`charge_context`).
+
+    Attributes
+    ----------
+    circuit, stage, tech, tables
+    devices : list of Device
+        :func:`table_devices` of the stage.
+    clocked : set of str
+        Devices on the dynamic node gated by a clock (the clock-edge
+        measurement covers them).
+    receivers : list of callable
+        Input charge functions of the receivers on the dynamic node.
+    rests : dict of str to NodeCharge
+        Each node's lumped charge without what the tables hold, filled as
+        nodes are met.
+    """
+
+    circuit: object
+    stage: object
+    tech: object
+    tables: object
+    devices: list
+    clocked: set
+    receivers: list
+    rests: dict
+
+    def rest(self, net: str):
+        if net not in self.rests:
+            self.rests[net] = _lumped_rest(self.circuit.nets.get(net), self.circuit, self.stage, self.tech,
+                                           self.devices, self.stage.receivers)
+        return self.rests[net]
+
+
+def charge_context(circuit, stage, tech, tables) -> ChargeContext:
+    """Prepare :class:`ChargeContext` (O(devices of the circuit), once per stage)."""
+    devices = table_devices(circuit, stage)
+    clocked = {name for name, role in clock_setup(circuit, stage, tech, devices)["devices"] if role == "clocked"}
+    receivers = [tables.receiver(r.nmos) for r in stage.receivers
+                 if circuit.device(r.nmos).gate == stage.dynamic_node]
+    return ChargeContext(circuit, stage, tech, tables, devices, clocked, receivers, {})
+
+
+def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict,
+                               passes=()) -> float:
     """The dynamic node's final voltage with the models' device charges.
 
     Parameters
     ----------
-    circuit, stage, tech
-    tables : StageTables
+    ctx : ChargeContext
+        The stage, its tables and what is prepared once per stage.
     group : list of str
         The dynamic node first, then the nodes it ends joined to.
     levels : GateLevels
@@ -180,39 +227,30 @@ def final_voltage_with_devices(circuit, stage, tech, tables, group: list[str], l
     float
         V(X) at the end, V.
     """
+    stage, tech, tables = ctx.stage, ctx.tech, ctx.tables
     vdd = float(tech.vdd)
     n_type = stage.polarity == "n"
-    tdevs = table_devices(circuit, stage)
     members = set(group)
-    rests = {n: _lumped_rest(circuit.nets.get(n), circuit, stage, tech, tdevs, stage.receivers) for n in group}
-    terms = {n: [] for n in group}
-    rx = [tables.receiver(r.nmos) for r in stage.receivers if circuit.device(r.nmos).gate == stage.dynamic_node]
-    clocked = {name for name, role in clock_setup(circuit, stage, tech)["devices"] if role == "clocked"}
+    rests = {n: ctx.rest(n) for n in group}
     before = dict(levels.before)
     if tables.clock_v is not None:
         # the clock edge is measured as a whole: the clocked devices count
         # at their evaluation level, their coupling and channel charge come
         # in as the charge that moved the lone node to clock_v
-        before.update({name: levels.after[name] for name in clocked})
-    term_fns = {}
-
-    def fn(name, vg):
-        key = (name, round(float(vg), 6))
-        if key not in term_fns:
-            term_fns[key] = tables.terminal(name, vg)
-        return term_fns[key]
-
-    for d in tdevs:
+        before.update({name: levels.after[name] for name in ctx.clocked})
+    terms = {n: [] for n in group}
+    for d in ctx.devices:
         for t in (d.drain, d.source):
             if t in members:
-                terms[t].append((d.name, fn(d.name, before[d.name]), fn(d.name, levels.after[d.name])))
+                terms[t].append((tables.terminal(d.name, before[d.name]),
+                                 tables.terminal(d.name, levels.after[d.name])))
 
     def q_node(n, v, which):
         q = float(rests[n].charge(float(v)))
-        for _, b, a in terms[n]:
+        for b, a in terms[n]:
             q += 0.5 * float((b if which == 0 else a)(v))
         if n == stage.dynamic_node:
-            q += sum(float(f(v)) for f in rx)
+            q += sum(float(f(v)) for f in ctx.receivers)
         return q
 
     total = sum(q_node(n, start[n], 0) for n in group)

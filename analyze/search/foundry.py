@@ -22,9 +22,10 @@ millisecond).
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
-from analyze.physics.device_charge import clock_setup, final_voltage_with_devices, gate_levels, table_devices
+from analyze.physics.device_charge import (charge_context, clock_setup, final_voltage_with_devices, gate_levels,
+                                           table_devices)
 from analyze.physics.device_tables import stage_tables
 from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
 
@@ -36,12 +37,25 @@ EXHAUSTIVE = 256
 RANKED = 16
 
 
+@dataclass
 class FoundryOutcome:
-    """What :func:`foundry_worst_case` found: ``worst`` (a WorstCase with
-    ``case``), ``threshold_v``, ``corner`` and ``note``."""
+    """What :func:`foundry_worst_case` found.
 
-    def __init__(self, worst, threshold_v, corner, note):
-        self.worst, self.threshold_v, self.corner, self.note = worst, threshold_v, corner, note
+    Attributes
+    ----------
+    worst : WorstCase or None
+        With ``case`` set; None when no pattern counts.
+    threshold_v : float
+        The receivers' switching point from the models.
+    corner : str or None
+    note : str or None
+        How the candidates were chosen, when not every counted pattern.
+    """
+
+    worst: object
+    threshold_v: float
+    corner: object
+    note: object
 
 
 def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None, cases=None) -> FoundryOutcome:
@@ -74,7 +88,9 @@ def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None,
         vt = abs(tech.mos[d.type].vt0)
         levels[d.name] = {0.0, vdd, vdd - vt, vt}
     tops = [d.name for d in tdevs if d.name in stage.evaluation and stage.dynamic_node in (d.drain, d.source)]
-    tables = stage_tables(circuit, stage, tech, levels, corner, passes=tops, clock=clock_setup(circuit, stage, tech))
+    tables = stage_tables(circuit, stage, tech, levels, corner, passes=tops,
+                          clock=clock_setup(circuit, stage, tech, tdevs))
+    ctx = charge_context(circuit, stage, tech, tables)
     if tables.thresholds:
         vms = list(tables.thresholds.values())
         threshold = max(vms) if n_type else min(vms)
@@ -84,7 +100,6 @@ def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None,
     late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
     start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
     worst, worst_v = None, None
-    solved = {}
     for wc in candidates:
         group = [stage.dynamic_node, *wc.shared_nodes]
         start = {n: start_int for n in group}
@@ -94,13 +109,10 @@ def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None,
         passes = [p for p in tops if wc.inputs.get(circuit.device(p).gate) == on]
         for case in cases:
             late = set(stage.inputs) if case == "rising" else late_top
-            key = (tuple(group), case, tuple(sorted(wc.inputs.items())))
-            if key not in solved:
-                lv = gate_levels(circuit, stage, tech, wc.inputs, late)
-                v = final_voltage_with_devices(circuit, stage, tech, tables, group, lv, start, passes=passes)
-                # the window opens with the node at its start: its extreme is never past it
-                solved[key] = min(v, start_x) if n_type else max(v, start_x)
-            v = solved[key]
+            lv = gate_levels(circuit, stage, tech, wc.inputs, late, tdevs)
+            v = final_voltage_with_devices(ctx, group, lv, start, passes=passes)
+            # the window opens with the node at its start: its extreme is never past it
+            v = min(v, start_x) if n_type else max(v, start_x)
             if worst is None or (v < worst_v if n_type else v > worst_v):
                 worst, worst_v = replace(wc, v_final=v, droop_v=abs(start_x - v), case=case), v
     return FoundryOutcome(worst, threshold, corner, note)

@@ -2,7 +2,6 @@
 file and place, no traceback, no output file left behind (the behaviour
 the README promises for every command)."""
 
-import os
 import subprocess
 import sys
 

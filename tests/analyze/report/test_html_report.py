@@ -35,7 +35,7 @@ from analyze.compare.comparison import StageComparison, compare_circuits
 from analyze.report.html_check import check_html, compare_html
 from analyze.report.svg_layout import cap_bins, cap_ramp, layout_svg
 from analyze.report.svg_plots import pattern_plot_svg
-from extract.circuit import CapParts, Circuit, Device, Net
+from extract.circuit import CapParts, Circuit, Net
 from extract.layout.pipeline import extract_layout
 from extract.techfile import load_tech
 from sample_layouts.make_samples import write_library

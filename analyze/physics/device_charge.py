@@ -205,7 +205,7 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
 
 
 def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict,
-                               passes=()) -> float:
+                               passes=(), links=()) -> float:
     """The dynamic node's final voltage with the models' device charges.
 
     Parameters
@@ -221,6 +221,11 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
         The conducting devices between the dynamic node and the internal
         nodes; past the pass limit, their subthreshold current (from the
         tables) keeps charging the internal nodes until ``evaluation_ns``.
+    links : iterable of (str, str, str)
+        The conducting devices inside the group with their two channel
+        terminals; when given (and measured), the creep past the pass limit
+        is solved node by node through them (:func:`_creep_network`)
+        instead of through ``passes`` into one lumped internal node.
 
     Returns
     -------
@@ -285,12 +290,31 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
         except ValueError:
             return vdd if n_type else 0.0
 
+    # internal nodes that start precharged (predischarged) share among
+    # themselves first; where that already leaves them past the pass limit,
+    # the dynamic node gives them nothing but the subthreshold creep
+    v_int0 = None
+    if any((start[n] > 0.5 * vdd) == n_type for n in internal):
+        q_int = sum(q_node(n, start[n], 0) for n in internal)
+        v_int0 = brentq(lambda v: sum(q_node(n, v, 1) for n in internal) - q_int, -margin, vdd + margin,
+                        xtol=1e-7)
+    links = [ln for ln in links if ln[0] in tables.currents]
+    if links and all(a in members and b in members for _, a, b in links):
+        v_from = v_lim - 0.3 if n_type else v_lim + 0.3
+        if v_int0 is not None:
+            v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
+        ends = _creep_network(ctx, group, links, lambda n, v: q_node(n, v, 1), v_x_near, v_from, v_eq,
+                              tech.evaluation_ns, margin)
+        rest = total - sum(q_node(n, ends[n], 1) for n in internal)
+        return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
     currents = [tables.current(p) for p in passes if p in tables.currents]
-    v_end = v_lim
+    v_end = v_lim if v_int0 is None else (max(v_lim, v_int0) if n_type else min(v_lim, v_int0))
     if currents:
         # the fast phase up to a few hundred mV short of the pass limit takes
         # no time worth counting; integrate from there
         v_from = v_lim - 0.3 if n_type else v_lim + 0.3
+        if v_int0 is not None:
+            v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
         v_end = _creep(lambda v: sum(q_node(n, v, 1) for n in internal), currents, v_x_near, v_eq,
                        v_from, tech.evaluation_ns)
     return v_x(v_end)
@@ -311,3 +335,79 @@ def _creep(q_internal, currents, v_x, v_eq: float, v0: float, t_ns: float) -> fl
     if t[-1] <= t_ns:
         return v_eq
     return float(np.interp(t_ns, t, grid))
+
+
+def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float) -> dict:
+    """Where each node of the group is after ``t_ns`` of conduction through
+    ``links`` past the pass limit.
+
+    Every internal node starts at ``v_from`` (the end of the fast phase; the
+    dynamic node where conservation puts it) and the node voltages follow
+    C_n(V_n)·dV_n/dt = Σ I_k, I_k the measured channel current of each
+    conducting device from its higher to its lower terminal (gate on; the
+    current table's near terminal is the lower one).  A node deep in a stack
+    is charged through several devices in series, each with little
+    drain–source voltage, so it lags the nodes above it: the lumped creep
+    of :func:`_creep` would fill it as fast as the top node.
+
+    Parameters
+    ----------
+    ctx : ChargeContext
+    group : list of str
+        The dynamic node first.
+    links : list of (str, str, str)
+        Device name and its two terminals, both in the group.
+    q_of : callable
+        ``q_of(node, v)``: the node's charge after the edge, fC.
+    v_x0 : callable
+        The dynamic node's voltage for the internal nodes at one voltage.
+    v_from, v_eq : float
+        Start of the creep and the equalised voltage (never passed).
+    t_ns : float
+    margin : float
+        How far past the rails voltages may go (the junction bracket).
+
+    Returns
+    -------
+    dict of str to float
+        Each internal node's voltage at ``t_ns``.
+
+    Notes
+    -----
+    C_n(V) from the node's charge tabulated on a grid; currents from
+    :meth:`analyze.physics.device_tables.StageTables.current`; stiff ODE integrated by scipy's BDF method
+    (Curtiss–Hirschfelder backward differentiation).  Cost: a few hundred
+    evaluations of O(links) interpolations.
+    """
+    from scipy.integrate import solve_ivp
+
+    tables = ctx.tables
+    vdd = float(ctx.tech.vdd)
+    n_type = ctx.stage.polarity == "n"
+    grid = np.linspace(-margin, vdd + margin, 2 * len(tables.v) + 1)
+    caps = []
+    for n in group:
+        q = np.array([q_of(n, v) for v in grid])
+        caps.append(np.maximum(np.abs(np.gradient(q, grid)), 1e-6))
+    index = {n: k for k, n in enumerate(group)}
+    funcs = [tables.current(name) for name, _, _ in links]
+    ends = [(index[a], index[b]) for _, a, b in links]
+    sign = 1.0 if n_type else -1.0
+
+    def rates(_t, v):
+        flow = np.zeros(len(group))
+        for f, (i, j) in zip(funcs, ends):
+            # the receiving node: the lower one (n-type), the higher (p-type)
+            r, g = (j, i) if (v[i] >= v[j]) == n_type else (i, j)
+            cur = f(v[r], v[g])
+            flow[r] += sign * cur
+            flow[g] -= sign * cur
+        c = np.array([np.interp(v[m], grid, caps[m]) for m in range(len(group))])
+        return flow / c
+
+    v0 = np.full(len(group), v_from)
+    v0[0] = v_x0(v_from)
+    sol = solve_ivp(rates, (0.0, t_ns), v0, method="BDF", rtol=1e-4, atol=1e-5)
+    v_end = sol.y[:, -1]
+    lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
+    return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}

@@ -50,12 +50,13 @@ import numpy as np
 
 from extract.tech import Tech
 
-__all__ = ["StageTables", "stage_tables", "GRID_STEPS"]
+__all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
 
 #: Voltage grid: VDD / GRID_STEPS steps.
 GRID_STEPS = 180
-#: Far-terminal grid of the current tables: VDD / FAR_STEPS steps.
-FAR_STEPS = 18
+#: Drain–source voltages of the current tables, V (log-spaced: a
+#: subthreshold current grows as 1 − exp(−V_DS/V_T) over the first ~0.1 V).
+VDS_GRID = (0.002, 0.005, 0.01, 0.02, 0.04, 0.08, 0.15, 0.3, 0.6, 1.0, 1.8)
 
 
 @dataclass
@@ -75,10 +76,12 @@ class StageTables:
         Receiver nmos name -> switching point, V.
     currents : dict of str to ndarray
         Pass device name -> its current (µA, positive) with the gate on
-        (nmos at VDD, pmos at 0), rows: the far terminal (towards the
-        dynamic node) at ``v_far``, columns: the near one at ``v``.
-    v_far : ndarray
-        Far-terminal voltages of the current tables, V.
+        (nmos at VDD, pmos at 0); rows: the drain–source voltage
+        ``v_ds`` (far terminal, towards the dynamic node, above the near
+        one for an nmos, below it for a pmos), columns: the near terminal
+        at ``v``.
+    v_ds : ndarray
+        Drain–source voltages of the current tables, V.
     clock_v : float or None
         The dynamic node's voltage at the end of the evaluation window when
         nothing shares it: where the clock edge alone (coupling and the
@@ -90,17 +93,26 @@ class StageTables:
     receivers: dict = field(default_factory=dict)
     thresholds: dict = field(default_factory=dict)
     currents: dict = field(default_factory=dict)
-    v_far: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    v_ds: np.ndarray = field(default_factory=lambda: np.asarray(VDS_GRID))
     clock_v: float | None = None
 
     def current(self, name: str):
-        """Pass current ``I(v_near, v_far)`` of ``name``, µA (log-interpolated
-        in the near voltage, linear in the far one)."""
+        """Pass current ``I(v_near, v_far)`` of ``name``, µA: log-interpolated
+        in the near voltage, log–log in |V_DS| = |v_far − v_near| (below the
+        grid's first step, proportional to V_DS, as a subthreshold current
+        1 − exp(−V_DS/V_T) is for V_DS ≪ V_T; EKV/BSIM subthreshold form,
+        from memory)."""
         logs = np.log(np.maximum(self.currents[name], 1e-15))
+        lds = np.log(self.v_ds)
 
         def i(v_near, v_far):
+            vds = abs(float(v_far) - float(v_near))
+            if vds <= 0.0:
+                return 0.0
             rows = np.array([np.interp(v_near, self.v, row) for row in logs])
-            return float(np.exp(np.interp(v_far, self.v_far, rows)))
+            if vds < self.v_ds[0]:
+                return float(np.exp(rows[0]) * vds / self.v_ds[0])
+            return float(np.exp(np.interp(np.log(vds), lds, rows)))
         return i
 
     def terminal(self, name: str, vg: float):
@@ -129,7 +141,7 @@ def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         h.update(hashlib.sha256(fh.read()).digest())
-    h.update(json.dumps(["ramp-integral-3", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
+    h.update(json.dumps(["ramp-integral-4", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 
@@ -209,7 +221,6 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
             json.dump(data, fh)
         os.replace(tmp, cache)
     out = StageTables(grid)
-    out.v_far = np.linspace(0.0, vdd, FAR_STEPS + 1)
     out.clock_v = data.get("clock_v")
     for k, it in enumerate(items):
         if it[0] == "t":
@@ -308,31 +319,36 @@ def _terminal_role(circuit, tech, stage, name):
 
 
 def _measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
-    """Pass currents: a nested DC sweep, near terminal (inner) and far terminal (outer)."""
+    """Pass currents: one DC sweep of the near terminal per drain–source
+    voltage of :data:`VDS_GRID` (the far terminal rides on the near one
+    through a source: above it for an nmos, below it for a pmos)."""
     kind = {t: pruned.kinds.get(n.lower(), "subckt") for t, n in names.items()}
-    lines = [f"Vdd vdd 0 {vdd:.6g}", "Vsw sw 0 0", "Vfar far 0 0"]  # noqa: F541
+    lines = [f"Vdd vdd 0 {vdd:.6g}", "Vsw sw 0 0", "Vdsn farn sw 0", "Vdsp farp sw 0"]
     rows = []
     for k, it in enumerate(items):
         if it[0] != "i":
             continue
         _, _, t, w, l = it
-        gate, body = ("vdd", "0") if t == "nmos" else ("0", "vdd")
+        gate, body, far = ("vdd", "0", "farn") if t == "nmos" else ("0", "vdd", "farp")
         lines.append(f"Vc{k} c{k} sw 0")
-        lines.append(transistor_line(f"p{k}", ("far", gate, f"c{k}", body), names[t], kind[t], pruned.scale, w, l))
+        lines.append(transistor_line(f"p{k}", (far, gate, f"c{k}", body), names[t], kind[t], pruned.scale, w, l))
         rows.append(k)
     if not rows:
         return {}
     options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
-    commands = [f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g} Vfar 0 {vdd:.6g} {vdd / FAR_STEPS:.6g}",
-                "wrdata currents.txt " + " ".join(f"i(Vc{k})" for k in rows)]
+    commands = []
+    for j, vds in enumerate(VDS_GRID):
+        commands += [f"alter Vdsn dc = {vds:.6g}", f"alter Vdsp dc = {-vds:.6g}",
+                     f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g}",
+                     f"wrdata currents{j}.txt " + " ".join(f"i(Vc{k})" for k in rows)]
     text = deck(f"dynshare: pass currents at corner {corner}", pruned.path, lines, commands, options)
-    res = run_deck(text, f"pass currents at corner {corner}", tables=["currents.txt"])
-    table = res.tables["currents.txt"]
+    res = run_deck(text, f"pass currents at corner {corner}",
+                   tables=[f"currents{j}.txt" for j in range(len(VDS_GRID))])
     n_near = GRID_STEPS + 1
     out = {}
     for j, k in enumerate(rows, start=1):
-        col = np.abs(table[:, j]) * 1e6
-        out[str(k)] = col[: n_near * (FAR_STEPS + 1)].reshape(FAR_STEPS + 1, n_near).tolist()
+        out[str(k)] = [(np.abs(res.tables[f"currents{r}.txt"][:n_near, j]) * 1e6).tolist()
+                       for r in range(len(VDS_GRID))]
     return out
 
 

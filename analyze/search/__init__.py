@@ -6,6 +6,8 @@ Modules: :mod:`~analyze.search.constraints` (the constraints file),
 the start of evaluation),
 :mod:`~analyze.search.worstcase` (brute force and branch-and-bound),
 :mod:`~analyze.search.flags` (nodes that need a precharge device),
+:mod:`~analyze.search.foundry` (the worst case with the foundry models),
+:mod:`~analyze.search.foundry_flags` (flags proven with the foundry models),
 :mod:`~analyze.search.analysis` (the public entry points).
 
 May import: :mod:`extract`, :mod:`analyze.stages`, :mod:`analyze.physics`.

@@ -204,8 +204,9 @@ def analyze_stage(
                          "these mos.nmos/mos.pmos numbers and node capacitances", f"stage {stage.dynamic_node}") from None
     counted = count_counted(model, choices)
     physics, physics_note = "level-1 (tech file)", None
+    prep = candidates = None
     if tech.models is not None and not precharged:
-        from analyze.search.foundry import EXHAUSTIVE, RANKED, foundry_worst_case
+        from analyze.search.foundry import EXHAUSTIVE, RANKED, prepare_stage, solve_candidates
 
         if counted is not None and counted <= EXHAUSTIVE:
             candidates, chosen = list(iter_counted_patterns(circuit, stage, tech, constraints)), None
@@ -214,18 +215,18 @@ def analyze_stage(
             chosen = (f"foundry-model worst case taken over the lumped model's {len(candidates)} worst patterns "
                       f"with distinct shared nodes (more than {EXHAUSTIVE} counted patterns)")
         try:
-            outcome = foundry_worst_case(circuit, stage, tech, constraints, candidates, chosen)
+            prep = prepare_stage(circuit, stage, tech)
         except InputError as exc:
             # the library cannot simulate these devices (outside its bins, ...):
             # the lumped model stands, and the report says why
             physics_note = f"foundry models not usable for this stage ({exc.line()}); level-1 numbers used"
         else:
-            if outcome.worst is not None:
-                wc = replace(outcome.worst,
-                             v_final_linear=wc.v_final_linear if wc else outcome.worst.v_final_linear)
-            threshold = outcome.threshold_v
-            physics = f"foundry models, corner {outcome.corner or '(library)'}"
-            physics_note = outcome.note
+            found_f = solve_candidates(prep, circuit, stage, tech, constraints, candidates)
+            if found_f is not None:
+                wc = replace(found_f, v_final_linear=wc.v_final_linear if wc else found_f.v_final_linear)
+            threshold = prep.threshold_v
+            physics = f"foundry models, corner {prep.corner or '(library)'}"
+            physics_note = chosen
     v = model.to_volts(model.vdd) if wc is None else wc.v_final
     n_type = stage.polarity == "n"
     margin = v - threshold if n_type else threshold - v
@@ -235,8 +236,10 @@ def analyze_stage(
     if status == "fail":
         need = threshold + tech.guard if n_type else tech.vdd - threshold + tech.guard
         flags, note = find_flags(circuit, model, choices, need)
-        if physics != "level-1 (tech file)" and flags:
-            note = ((note + "; ") if note else "") + "flags and their proof use the lumped model"
+        if prep is not None:
+            from analyze.search.foundry_flags import prove_flags
+
+            flags, note = prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, threshold)
     return StageResult(
         stage=stage,
         threshold_v=threshold,

@@ -27,9 +27,12 @@ from dataclasses import dataclass, replace
 from analyze.physics.device_charge import (charge_context, clock_setup, final_voltage_with_devices, gate_levels,
                                            table_devices)
 from analyze.physics.device_tables import stage_tables
+from analyze.physics.threshold import pass_limit
 from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
 
-__all__ = ["FoundryOutcome", "foundry_worst_case", "EXHAUSTIVE", "RANKED"]
+__all__ = ["FoundryOutcome", "FoundryStage", "foundry_worst_case", "prepare_stage", "solve_candidates",
+           "precharged_through",
+           "EXHAUSTIVE", "RANKED"]
 
 #: Up to this many counted patterns, every one is solved.
 EXHAUSTIVE = 256
@@ -58,7 +61,119 @@ class FoundryOutcome:
     note: object
 
 
-def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None, cases=None) -> FoundryOutcome:
+@dataclass
+class FoundryStage:
+    """What the foundry-model solve of one stage prepares once
+    (:func:`prepare_stage`): its table devices, measured tables, solver
+    context, the top evaluation devices (pass-current candidates) and the
+    receivers' switching point."""
+
+    devices: list
+    tables: object
+    context: object
+    tops: list
+    threshold_v: float
+    corner: object
+
+
+def prepare_stage(circuit, stage, tech) -> FoundryStage:
+    """Measure (or read from the cache) the stage's device tables and
+    prepare the solver (one ngspice run per stage and corner, cached)."""
+    vdd = float(tech.vdd)
+    corner = tech.models.corners[0] if tech.models.corners else None
+    tdevs = table_devices(circuit, stage)
+    levels = {}
+    for d in tdevs:
+        vt = abs(tech.mos[d.type].vt0)
+        levels[d.name] = {0.0, vdd, vdd - vt, vt}
+    tops = [d.name for d in tdevs if d.name in stage.evaluation and stage.dynamic_node in (d.drain, d.source)]
+    evaluation = [d.name for d in tdevs if d.name in stage.evaluation]
+    tables = stage_tables(circuit, stage, tech, levels, corner, passes=evaluation,
+                          clock=clock_setup(circuit, stage, tech, tdevs))
+    ctx = charge_context(circuit, stage, tech, tables)
+    if tables.thresholds:
+        vms = list(tables.thresholds.values())
+        threshold = max(vms) if stage.polarity == "n" else min(vms)
+    else:
+        threshold = 0.5 * vdd
+    return FoundryStage(tdevs, tables, ctx, tops, threshold, corner)
+
+
+def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, candidates, cases=None,
+                     precharged=frozenset()):
+    """The worst of ``candidates`` over the arrival cases with the models:
+    a WorstCase with ``case`` set, or None when there are no candidates.
+    Nodes in ``precharged`` (and the stage's own secondary precharge) start
+    at the precharge level."""
+    vdd = float(tech.vdd)
+    n_type = stage.polarity == "n"
+    cases = arrival_cases(circuit, stage, constraints) if cases is None else tuple(cases)
+    late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
+    start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
+    pre = set(stage.secondary_precharge) | set(precharged)
+    worst, worst_v = None, None
+    for wc in candidates:
+        group = [stage.dynamic_node, *wc.shared_nodes]
+        start = {n: (start_x if n in pre else start_int) for n in group}
+        start[stage.dynamic_node] = start_x
+        on = 1 if n_type else 0
+        passes = [p for p in prep.tops if wc.inputs.get(circuit.device(p).gate) == on]
+        members = set(group)
+        links = [(d.name, d.drain, d.source) for d in prep.devices
+                 if d.name in stage.evaluation and wc.inputs.get(d.gate) == on
+                 and d.drain in members and d.source in members]
+        for case in cases:
+            late = set(stage.inputs) if case == "rising" else late_top
+            lv = gate_levels(circuit, stage, tech, wc.inputs, late, prep.devices)
+            v = final_voltage_with_devices(prep.context, group, lv,
+                                           precharged_through(prep, stage, tech, wc.inputs, late, pre, start),
+                                           passes=passes, links=links)
+            # the window opens with the node at its start: its extreme is never past it
+            v = min(v, start_x) if n_type else max(v, start_x)
+            if worst is None or (v < worst_v if n_type else v > worst_v):
+                worst, worst_v = replace(wc, v_final=v, droop_v=abs(start_x - v), case=case), v
+    return worst
+
+
+def precharged_through(prep: FoundryStage, stage, tech, inputs: dict, late: set, pre: set, start: dict) -> dict:
+    """Start voltages with what the precharge reaches through conducting
+    devices: an internal node joined during precharge (through evaluation
+    devices whose inputs already hold their on level) to the dynamic node or
+    to a precharged internal node starts at the pass limit
+    V_lim = VDD − VT(V_lim) (p-type: |VT| above ground) unless it starts
+    further; the precharged nodes themselves at the rail.
+
+    Source: the pass-transistor limit of an nmos passing a high level
+    (Weste & Harris, CMOS VLSI Design, 4th ed., sec. 2.5.4, from memory);
+    the precharge phase is long enough to reach it (common practice).
+    """
+    n_type = stage.polarity == "n"
+    vdd = float(tech.vdd)
+    on = 1 if n_type else 0
+    v_lim = pass_limit(tech.mos["nmos" if n_type else "pmos"], vdd)
+    v_lim = v_lim if n_type else vdd - v_lim
+    adj = {}
+    for d in prep.devices:
+        if d.name in stage.evaluation and d.gate in inputs and d.gate not in late and inputs[d.gate] == on:
+            adj.setdefault(d.drain, []).append(d.source)
+            adj.setdefault(d.source, []).append(d.drain)
+    seen = {stage.dynamic_node, *pre}
+    todo = list(seen)
+    while todo:
+        n = todo.pop()
+        for m in adj.get(n, ()):
+            if m not in seen and m in stage.internal_nodes:
+                seen.add(m)
+                todo.append(m)
+    out = dict(start)
+    for n in seen - {stage.dynamic_node, *pre}:
+        if n in out:
+            out[n] = max(out[n], v_lim) if n_type else min(out[n], v_lim)
+    return out
+
+
+def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None, cases=None,
+                       precharged=frozenset()) -> FoundryOutcome:
     """The worst pattern and arrival case with the foundry models.
 
     Parameters
@@ -73,46 +188,14 @@ def foundry_worst_case(circuit, stage, tech, constraints, candidates, note=None,
         Said in the result (how the candidates were chosen).
     cases : iterable of str, optional
         Only these arrival cases (default: every case the constraints allow).
+    precharged : iterable of str, optional
+        Internal nodes that start precharged (predischarged) as well.
 
     Returns
     -------
     FoundryOutcome
         ``worst`` is None when no pattern counts.
     """
-    vdd = float(tech.vdd)
-    n_type = stage.polarity == "n"
-    corner = tech.models.corners[0] if tech.models.corners else None
-    tdevs = table_devices(circuit, stage)
-    levels = {}
-    for d in tdevs:
-        vt = abs(tech.mos[d.type].vt0)
-        levels[d.name] = {0.0, vdd, vdd - vt, vt}
-    tops = [d.name for d in tdevs if d.name in stage.evaluation and stage.dynamic_node in (d.drain, d.source)]
-    tables = stage_tables(circuit, stage, tech, levels, corner, passes=tops,
-                          clock=clock_setup(circuit, stage, tech, tdevs))
-    ctx = charge_context(circuit, stage, tech, tables)
-    if tables.thresholds:
-        vms = list(tables.thresholds.values())
-        threshold = max(vms) if n_type else min(vms)
-    else:
-        threshold = 0.5 * vdd
-    cases = arrival_cases(circuit, stage, constraints) if cases is None else tuple(cases)
-    late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
-    start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
-    worst, worst_v = None, None
-    for wc in candidates:
-        group = [stage.dynamic_node, *wc.shared_nodes]
-        start = {n: start_int for n in group}
-        start.update({n: (vdd if n_type else 0.0) for n in stage.secondary_precharge if n in start})
-        start[stage.dynamic_node] = start_x
-        on = 1 if n_type else 0
-        passes = [p for p in tops if wc.inputs.get(circuit.device(p).gate) == on]
-        for case in cases:
-            late = set(stage.inputs) if case == "rising" else late_top
-            lv = gate_levels(circuit, stage, tech, wc.inputs, late, tdevs)
-            v = final_voltage_with_devices(ctx, group, lv, start, passes=passes)
-            # the window opens with the node at its start: its extreme is never past it
-            v = min(v, start_x) if n_type else max(v, start_x)
-            if worst is None or (v < worst_v if n_type else v > worst_v):
-                worst, worst_v = replace(wc, v_final=v, droop_v=abs(start_x - v), case=case), v
-    return FoundryOutcome(worst, threshold, corner, note)
+    prep = prepare_stage(circuit, stage, tech)
+    worst = solve_candidates(prep, circuit, stage, tech, constraints, candidates, cases, precharged)
+    return FoundryOutcome(worst, prep.threshold_v, prep.corner, note)

@@ -14,9 +14,10 @@ with, but counts each device's charge as the models give it
   overlaps — the input's driver pays for the gate side;
 - the clock edge: the precharge device's gate goes on from where it turned
   off (VDD − |VTp|) to VDD, coupling through its overlap;
-- the receivers' input charge over the whole input swing, the output
-  following (not a flat cox·W·L), and the switching point from the same
-  models;
+- the receivers' input charge over the whole input swing with the output
+  held where it was before evaluation (not a flat cox·W·L; the dynamic
+  node's lowest point comes before the output swings back through the
+  gate–drain capacitance), and the switching point from the same models;
 - junction bottom and field sidewall by the depletion formula of
   :mod:`analyze.physics.charge` (fitted); the gate-edge sidewall of the
   devices measured here is in their tables.
@@ -199,7 +200,10 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
     """Prepare :class:`ChargeContext` (O(devices of the circuit), once per stage)."""
     devices = table_devices(circuit, stage)
     clocked = {name for name, role in clock_setup(circuit, stage, tech, devices)["devices"] if role == "clocked"}
-    receivers = [tables.receiver(r.nmos) for r in stage.receivers
+    # the lowest point of the dynamic node comes before the receiver's
+    # output moves: its input charge with the output held where it was
+    held = "lo" if stage.polarity == "n" else "hi"
+    receivers = [tables.receiver(r.nmos, held) for r in stage.receivers
                  if circuit.device(r.nmos).gate == stage.dynamic_node]
     return ChargeContext(circuit, stage, tech, tables, devices, clocked, receivers, {})
 
@@ -258,6 +262,16 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
             q += sum(float(f(v)) for f in ctx.receivers)
         return q
 
+    def q_grid(n, v):
+        """q_node(n, ·, after) over an array of voltages."""
+        q = np.asarray(rests[n].charge(v), dtype=float)
+        for _, a in terms[n]:
+            q = q + 0.5 * a(v)
+        if n == stage.dynamic_node:
+            for f in ctx.receivers:
+                q = q + f(v)
+        return q
+
     total = sum(q_node(n, start[n], 0) for n in group)
     if tables.clock_v is not None:
         x = stage.dynamic_node
@@ -303,7 +317,7 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
         v_from = v_lim - 0.3 if n_type else v_lim + 0.3
         if v_int0 is not None:
             v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
-        ends = _creep_network(ctx, group, links, lambda n, v: q_node(n, v, 1), v_x_near, v_from, v_eq,
+        ends = _creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq,
                               tech.evaluation_ns, margin)
         rest = total - sum(q_node(n, ends[n], 1) for n in internal)
         return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
@@ -358,7 +372,8 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     links : list of (str, str, str)
         Device name and its two terminals, both in the group.
     q_of : callable
-        ``q_of(node, v)``: the node's charge after the edge, fC.
+        ``q_of(node, v)``: the node's charge after the edge over an array
+        of voltages, fC.
     v_x0 : callable
         The dynamic node's voltage for the internal nodes at one voltage.
     v_from, v_eq : float
@@ -387,7 +402,7 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     grid = np.linspace(-margin, vdd + margin, 2 * len(tables.v) + 1)
     caps = []
     for n in group:
-        q = np.array([q_of(n, v) for v in grid])
+        q = q_of(n, grid)
         caps.append(np.maximum(np.abs(np.gradient(q, grid)), 1e-6))
     index = {n: k for k, n in enumerate(group)}
     funcs = [tables.current(name) for name, _, _ in links]

@@ -21,8 +21,10 @@ one stage, at the corner of the tech file's ``[models]``, with ngspice:
 ``receiver(rx)``
     The charge on a receiving inverter's input (both gates) over its input
     voltage, its output following (so the output's swing past the switching
-    point is in it), and that switching point from a DC sweep: the input
-    where the output equals it.
+    point is in it) or held where it was before evaluation (the dynamic
+    node's lowest point comes before the output moves: its swing couples
+    back through the gate–drain capacitance afterwards), and that switching
+    point from a DC sweep: the input where the output equals it.
 
 Charges are measured by integrating the current that a slow ramp draws
 (the models are quasi-static, so the ramp speed does not matter; a 1 fF
@@ -71,7 +73,11 @@ class StageTables:
         ``(device name, gate level V)`` -> charge on one source/drain
         terminal over ``v``, fC.
     receivers : dict of str to ndarray
-        Receiver nmos name -> input charge over ``v``, fC.
+        Receiver nmos name -> input charge over ``v``, fC, the output
+        following.
+    held : dict of (str, str) to ndarray
+        ``(receiver nmos name, "lo" or "hi")`` -> input charge over ``v``
+        with the output held low or high (where it is before evaluation).
     thresholds : dict of str to float
         Receiver nmos name -> switching point, V.
     currents : dict of str to ndarray
@@ -91,6 +97,7 @@ class StageTables:
     v: np.ndarray
     terminals: dict = field(default_factory=dict)
     receivers: dict = field(default_factory=dict)
+    held: dict = field(default_factory=dict)
     thresholds: dict = field(default_factory=dict)
     currents: dict = field(default_factory=dict)
     v_ds: np.ndarray = field(default_factory=lambda: np.asarray(VDS_GRID))
@@ -120,9 +127,10 @@ class StageTables:
         (linear beyond the grid's ends)."""
         return self._function(self.terminals[(name, round(float(vg), 6))])
 
-    def receiver(self, nmos: str):
-        """Input charge function of the receiver whose nmos is ``nmos``."""
-        return self._function(self.receivers[nmos])
+    def receiver(self, nmos: str, held: str | None = None):
+        """Input charge function of the receiver whose nmos is ``nmos``:
+        its output following (quasi-static), or held ``"lo"`` / ``"hi"``."""
+        return self._function(self.receivers[nmos] if held is None else self.held[(nmos, held)])
 
     def _function(self, table):
         v = self.v
@@ -141,7 +149,7 @@ def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         h.update(hashlib.sha256(fh.read()).digest())
-    h.update(json.dumps(["ramp-integral-4", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
+    h.update(json.dumps(["ramp-integral-5", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 
@@ -229,6 +237,8 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
             out.currents[it[1]] = np.asarray(data["i"][str(k)])
         else:
             out.receivers[it[1]] = np.asarray(data["q"][k])
+            for held in ("lo", "hi"):
+                out.held[(it[1], held)] = np.asarray(data["held"][f"{held}{k}"])
             out.thresholds[it[1]] = float(data["vm"][k])
     return out
 
@@ -265,6 +275,17 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
                                              kind["pmos"], pruned.scale, wp, lp))
             currents.append(f"i(Vi{k})")
             rows.append(("r", k))
+            # the same inverter with its output held where it was before
+            # evaluation (low, below an n-type stage's dynamic node; high
+            # above a p-type one's): the input charge before the output moves
+            for held, out in (("lo", "0"), ("hi", "vdd")):
+                lines.append(f"Vi{held}{k} i{held}{k} 0 {ramp}")
+                lines.append(transistor_line(f"rn{held}{k}", (out, f"i{held}{k}", "0", "0"), names["nmos"],
+                                             kind["nmos"], pruned.scale, wn, ln))
+                lines.append(transistor_line(f"rp{held}{k}", (out, f"i{held}{k}", "vdd", "vdd"), names["pmos"],
+                                             kind["pmos"], pruned.scale, wp, lp))
+                currents.append(f"i(Vi{held}{k})")
+                rows.append((held, k))
     commands = ["tran 5p 3n", "wrdata charges.txt " + " ".join(currents)]
     dc_vectors = [f"v(odc{k})" for kind_, k in rows if kind_ == "r"]
     if dc_vectors:
@@ -285,10 +306,13 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
     times = 1e-9 + 2e-9 * grid / vdd
     calib = np.interp(times, t, q[:, 0])
     scale = 1.0 / np.polyfit(grid, calib, 1)[0] if np.ptp(calib) > 0 else 1.0  # 1 fF -> 1 fC/V
-    out_q, out_vm = {}, {}
+    out_q, out_vm, out_held = {}, {}, {}
     transfer = res.tables.get("transfer.txt")
     col_dc = 1
     for j, (kind_, k) in enumerate(rows, start=1):
+        if kind_ in ("lo", "hi"):
+            out_held[f"{kind_}{k}"] = (np.interp(times, t, q[:, j]) * scale).tolist()
+            continue
         out_q[k] = (np.interp(times, t, q[:, j]) * scale).tolist()
         if kind_ == "r":
             v, vout = transfer[:, 0], transfer[:, col_dc]
@@ -302,7 +326,7 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
                 out_vm[k] = vdd / 2
     n = len(items)
     return {"q": [out_q.get(k, []) for k in range(n)], "vm": [out_vm.get(k, 0.0) for k in range(n)],
-            "calibration": float(scale)}
+            "held": out_held, "calibration": float(scale)}
 
 
 def _terminal_role(circuit, tech, stage, name):

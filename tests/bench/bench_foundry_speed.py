@@ -1,0 +1,82 @@
+"""Speed of the foundry-model check against simulating every pattern.
+
+For the ten sky130 stages of our own (tests/helpers/sky130_stages.py) at one
+corner: the whole analysis of the stage (worst case over every counted
+pattern and arrival case with the models' device charges, threshold, count,
+flags) with its device tables measured afresh (an empty table cache) and
+with them cached, against simulating every counted pattern in every
+arrival case with ngspice and the foundry models (``--simulate``'s decks,
+keeper in and tied off).  The simulation time is measured on up to
+``--sample`` distinct patterns and scaled to all counted patterns × cases
+(ngspice time is linear in the cases once each deck is full; said in the
+output).  Run by hand::
+
+    python3 tests/bench/bench_foundry_speed.py [--corner tt] [--sample 8] [--stages NAND2 ...]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(os.path.dirname(HERE))
+sys.path[:0] = [ROOT, os.path.join(ROOT, "tests", "helpers")]
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--corner", default="tt")
+    ap.add_argument("--sample", type=int, default=8)
+    ap.add_argument("--stages", nargs="*")
+    args = ap.parse_args(argv)
+    import sky130_stages as bs
+
+    from analyze.search.analysis import analyse_circuit
+    from analyze.search.cases import arrival_cases
+    from analyze.simulate.run import simulate_stage
+    from extract.netlist.reader import read_schematic
+    from extract.techfile import load_tech
+
+    tmp = tempfile.mkdtemp(prefix="bench-foundry-speed-")
+    tech = load_tech(bs.characterised_techs([args.corner], tmp)[args.corner])
+    print(f"corner {args.corner}; load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
+    print(f"{'stage':<8} {'patterns':>8} {'cases':>5} {'check cold':>10} {'check warm':>10} "
+          f"{'sim/case':>8} {'sim all (est.)':>14} {'× cold':>8} {'× warm':>8}")
+    saved = os.environ.get("DYNSHARE_CACHE")
+    for name, (ports, devices, caps) in bs.stages().items():
+        if args.stages and name not in args.stages:
+            continue
+        path = os.path.join(tmp, f"{name}.sp")
+        with open(path, "w") as fh:
+            fh.write(bs.netlist(name, ports, devices, caps))
+        circuit = read_schematic(path, tech)
+        # cold: an empty cache for the device tables (the pruned models too)
+        os.environ["DYNSHARE_CACHE"] = tempfile.mkdtemp(prefix="cold-", dir=tmp)
+        t0 = time.perf_counter()
+        _, (r,) = analyse_circuit(circuit, tech)
+        cold = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        _, (r,) = analyse_circuit(circuit, tech)
+        warm = time.perf_counter() - t0
+        if saved is None:
+            os.environ.pop("DYNSHARE_CACHE", None)
+        else:
+            os.environ["DYNSHARE_CACHE"] = saved
+        n_cases = len(arrival_cases(circuit, r.stage, None))
+        patterns = r.counted_patterns or 0
+        t0 = time.perf_counter()
+        sims = simulate_stage(circuit, r, tech, None, [args.corner], count=args.sample)
+        sim_time = time.perf_counter() - t0
+        per_case = sim_time / max(1, len(sims))
+        everything = per_case * patterns * n_cases
+        print(f"{name:<8} {patterns:>8} {n_cases:>5} {cold:>9.2f}s {warm:>9.3f}s {per_case:>7.2f}s "
+              f"{everything:>13.0f}s {everything / cold:>8.0f} {everything / warm:>8.0f}", flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -36,7 +36,6 @@ def main(argv=None) -> int:
 
     from analyze.search.analysis import analyse_circuit
     from analyze.simulate.run import simulate_stage
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
     from dataclasses import replace
 
@@ -48,13 +47,7 @@ def main(argv=None) -> int:
     for corner in args.corners:
         tech = load_tech(techs[corner])
         level1 = replace(tech, models=None)
-        for name, (ports, devices, caps) in bs.stages().items():
-            if args.stages and name not in args.stages:
-                continue
-            path = os.path.join(tmp, f"{name}.sp")
-            with open(path, "w") as fh:
-                fh.write(bs.netlist(name, ports, devices, caps))
-            circuit = read_schematic(path, tech)
+        for name, circuit in bs.stage_circuits(tech, tmp, args.stages):
             t0 = time.perf_counter()
             _, (r,) = analyse_circuit(circuit, tech)
             dt = time.perf_counter() - t0

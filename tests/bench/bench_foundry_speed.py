@@ -38,7 +38,6 @@ def main(argv=None) -> int:
     from analyze.search.analysis import analyse_circuit
     from analyze.search.cases import arrival_cases
     from analyze.simulate.run import simulate_stage
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
     tmp = tempfile.mkdtemp(prefix="bench-foundry-speed-")
@@ -47,13 +46,7 @@ def main(argv=None) -> int:
     print(f"{'stage':<8} {'patterns':>8} {'cases':>5} {'check cold':>10} {'check warm':>10} "
           f"{'sim/case':>8} {'sim all (est.)':>14} {'× cold':>8} {'× warm':>8}")
     saved = os.environ.get("DYNSHARE_CACHE")
-    for name, (ports, devices, caps) in bs.stages().items():
-        if args.stages and name not in args.stages:
-            continue
-        path = os.path.join(tmp, f"{name}.sp")
-        with open(path, "w") as fh:
-            fh.write(bs.netlist(name, ports, devices, caps))
-        circuit = read_schematic(path, tech)
+    for name, circuit in bs.stage_circuits(tech, tmp, args.stages):
         # cold: an empty cache for the device tables (the pruned models too)
         os.environ["DYNSHARE_CACHE"] = tempfile.mkdtemp(prefix="cold-", dir=tmp)
         t0 = time.perf_counter()

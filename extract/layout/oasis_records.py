@@ -98,12 +98,12 @@ class RecordWalk:
         make.
     grid_um : float
         The database unit in µm (bounds a circle's radius).
-    inflate_left : int
-        Bytes all CBLOCKs together may still inflate to.
+    inflate_budget : int
+        Bytes all CBLOCKs together may inflate to.
     """
 
-    def __init__(self, limit: int, grid_um: float, inflate_left: int):
-        self.limit, self.grid_um, self.inflate_left = limit, grid_um, inflate_left
+    def __init__(self, limit: int, grid_um: float, inflate_budget: int):
+        self.limit, self.grid_um, self.budget, self.inflated = limit, grid_um, inflate_budget, 0
         self.index, self.start, self.cblock, self.free, self.cblocks = 1, 13, None, 1, 0
         self.in_cell, self.seen_cell, self.defined = False, False, 0
         self.tables = {k: NameTable(k) for k in _TABLES}
@@ -416,10 +416,14 @@ class RecordWalk:
         packed, p = read_uint(buf, p)
         if packed > len(buf) - p:
             raise FieldError(f"CBLOCK of {packed:,} compressed bytes runs past the end of the file")
-        if size > DEFLATE_RATIO * packed + 64 or size > MAX_CBLOCK_BYTES or size > self.inflate_left:
-            raise FieldError(f"CBLOCK says {packed:,} bytes inflate to {size:,}: more than deflate gives (1032:1) "
-                             f"or than the limits ({MAX_CBLOCK_BYTES >> 20} MiB a CBLOCK, all CBLOCKs no more "
-                             "than the layout file size limit)")
+        if size > DEFLATE_RATIO * packed + 64:
+            raise FieldError(f"CBLOCK says {packed:,} bytes inflate to {size:,}: more than deflate gives (1032:1)")
+        if size > MAX_CBLOCK_BYTES:
+            raise FieldError(f"CBLOCK of {size:,} bytes inflated, more than the {MAX_CBLOCK_BYTES >> 20} MiB one may "
+                             "hold")
+        if self.inflated + size > self.budget:
+            raise FieldError(f"the CBLOCKs inflate to more than {self.budget:,} bytes (64 times the file, and 1 MiB):"
+                             " a decompression bomb")
         inflater = zlib.decompressobj(-15)
         try:
             body = inflater.decompress(buf[p : p + packed], size + 1)
@@ -431,7 +435,7 @@ class RecordWalk:
                              + ("" if inflater.eof and not inflater.unused_data else
                                 " and do not end the deflate stream exactly"))
         self.cblocks += 1
-        self.inflate_left -= size
+        self.inflated += size
         try:
             self.walk(body, 0, self.start)
         except IndexError:

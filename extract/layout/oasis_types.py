@@ -212,7 +212,7 @@ def read_string(buf, p: int, kind: str) -> tuple[bytes, int]:
         text = bytes(buf[p:end])
         if not text:
             raise FieldError("empty n-string (a name needs at least one character)")
-        shown = text[:40].decode("latin-1")
+        shown = text[:40].decode("ascii", "backslashreplace")
         span = "0x21-0x7E" if kind == "n" else "0x20-0x7E"
         raise FieldError(f"{kind}-string {shown!r} holds a byte outside {span}")
     return bytes(buf[p:end]), end

@@ -255,6 +255,15 @@ def test_cblocks():
     refused(file(cell() + cblock(R[:-2]) + R[-2:]), "runs past the end of the CBLOCK's data")  # no record crosses it
 
 
+def test_a_decompression_bomb_is_refused_before_it_is_inflated():
+    # 4 MB of two-byte rectangles (every field modal) deflate to about 4 kB; all CBLOCKs may
+    # inflate to 64 times the file and 1 MiB (the module's own bound, see MAX_INFLATION)
+    bomb = file(cell() + R + cblock(b"\x14\x00" * 2_000_000, 9))
+    assert len(bomb) < 10_000
+    refused(bomb, "record 4 (byte", "the CBLOCKs inflate to more than", "a decompression bomb")
+    check_oasis_grammar("x.oas", file(cell() + R + cblock(b"\x14\x00" * 200_000, 9)))  # 400 kB: within 1 MiB
+
+
 # ------------------------------------------------------------------ records and modal variables
 
 def test_modal_variables_must_be_set_first():
@@ -322,6 +331,21 @@ def test_circle_radius_within_100_m():
 
 
 # ------------------------------------------------------------------ the reader
+
+def test_files_of_many_elements_are_read_in_a_child_first(tmp_path, monkeypatch):
+    # gdstk does not check its allocations: a file too big for the memory crashes it; above
+    # PROBE_OBJECTS elements the file is read in a forked child first (here: a child that dies)
+    import signal
+
+    import extract.layout.reader as reader
+
+    path = tmp_path / "many.oas"
+    path.write_bytes(file(cell() + R * 3))
+    monkeypatch.setattr(reader, "PROBE_OBJECTS", 3)
+    monkeypatch.setattr(gdstk, "read_oas", lambda *a, **k: os.kill(os.getpid(), signal.SIGKILL))
+    with pytest.raises(InputError, match=r"many.oas: the OASIS reader \(gdstk\) died on this file \(signal 9"):
+        open_layout(str(path))
+
 
 def test_reader_uses_the_check(tmp_path):
     path = tmp_path / "bad.oas"

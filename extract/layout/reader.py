@@ -360,12 +360,14 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     wanted = None if layers is None else {tuple(x) for x in layers}
     flat = FlatLayout(path=path, cell=cell, grid_um=grid_um)
     with _QuietNative():
-        polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        if wanted is None:
+            polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        else:  # gdstk filters: shapes on other layers never become Python objects
+            polys = [poly for layer, datatype in sorted(wanted) for poly in top.get_polygons(
+                apply_repetitions=True, include_paths=True, depth=None, layer=layer, datatype=datatype)]
         labels = top.get_labels(apply_repetitions=True, depth=None)
     for poly in polys:
         key = (int(poly.layer), int(poly.datatype))
-        if wanted is not None and key not in wanted:
-            continue
         pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
         if len(pts) >= 3:
             flat.polygons.setdefault(key, []).append(pts)

@@ -23,13 +23,18 @@ modal variables, which start undefined at every CELL and name record.
 
 :func:`check_oasis_grammar` walks every record once, CBLOCKs inflated, and
 refuses the first that breaks a rule with its record number and byte offset
-(``record N (byte B)``, records counted from 1, bytes of a CBLOCK's data
-counted inside it).  Besides the grammar it enforces what gdstk needs to
-stay safe: a bounded inflated size, at most the shape limit of elements,
-properties and names (gdstk holds each in memory), no repetition of more
-placements than the shape limit (gdstk multiplies its dimensions in 64
-bits), explicit name numbers near the count of names (gdstk sizes its
-tables by the largest), a circle radius within 100 m (gdstk draws it).
+(``record N (byte B)``, records counted from 1 at START; inside a CBLOCK
+``(byte B of the CBLOCK at byte C)``, B counted in its inflated data).
+Name-table offsets must point before END (where they point is not checked:
+gdstk does not use them); a validation signature must match.  Besides the
+grammar it enforces what gdstk needs to stay safe (each seen to crash it or
+lose data, see the tests): extension records refused (gdstk stops reading
+at them), at most the shape limit of elements, properties and names (gdstk
+holds each in memory), no repetition of more placements than the shape
+limit (gdstk multiplies its dimensions in 64 bits), explicit name numbers
+near the count of names (gdstk sizes its tables by the largest), a circle
+radius within 100 m (gdstk draws it), and CBLOCKs inflating to at most
+:data:`MAX_INFLATION` times the file plus 1 MiB (a decompression bomb).
 """
 
 from __future__ import annotations
@@ -37,6 +42,7 @@ from __future__ import annotations
 import zlib
 
 from extract.errors import InputError
+from extract.layout.oasis_memory import size
 from extract.layout.oasis_records import RECORD_NAMES, RecordWalk
 from extract.layout.oasis_types import FieldError, read_real, read_string, read_uint
 from extract.limits import MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
@@ -55,10 +61,12 @@ class OasisSummary:
     included), ``cells`` (names in file order), ``grid_um`` (the database
     unit in µm), ``objects`` (records gdstk keeps: names, cells, elements,
     properties), ``cblocks``, ``inflated`` (bytes the CBLOCKs held),
-    ``validation`` (``"none"``, ``"crc32"`` or ``"checksum32"``)."""
+    ``memory`` (bytes gdstk will take to read it, roughly: 200 an object
+    and what :mod:`extract.layout.oasis_memory` counts), ``validation``
+    (``"none"``, ``"crc32"`` or ``"checksum32"``)."""
 
     def __init__(self):
-        self.records = self.objects = self.cblocks = self.inflated = 0
+        self.records = self.objects = self.cblocks = self.inflated = self.memory = 0
         self.cells: list[str] = []
         self.grid_um = 0.0
         self.validation = "none"
@@ -222,6 +230,12 @@ def check_oasis_grammar(path: str, data: bytes) -> OasisSummary:
             exc = f"{name} runs past the end of the file"
         raise InputError(path, str(exc), _place(place)) from None
     summary.cells = _resolve(path, walk)
+    over = walk.copies.finish(walk.tables)
+    if over is not None:
+        raise InputError(path, f"gdstk would copy {size(walk.copies.total)} reading this file (a name used by "
+                               "many records; the limit is 100 bytes per allowed shape, set DYNSHARE_MAX_SHAPES)",
+                         _place(over))
     summary.records, summary.objects, summary.cblocks = walk.index, walk.index - walk.free, walk.cblocks
     summary.inflated = walk.inflated
+    summary.memory = 200 * summary.objects + walk.copies.total
     return summary

@@ -43,6 +43,7 @@ from __future__ import annotations
 import re
 import zlib
 
+from extract.layout.oasis_memory import COPY_TABLES, Copies, circle_vertices
 from extract.layout.oasis_types import (INT_RUNS, FieldError, read_real, read_repetition, read_string, read_uint,
                                         skip_ints, skip_point_list, skip_property_values)
 
@@ -95,7 +96,8 @@ class RecordWalk:
     limit : int
         Most records that become objects in gdstk (everything but PAD,
         XYABSOLUTE, XYRELATIVE), and most placements one repetition may
-        make.
+        make; 100 bytes per unit of it is the most gdstk may copy
+        (:mod:`extract.layout.oasis_memory`).
     grid_um : float
         The database unit in µm (bounds a circle's radius).
     inflate_budget : int
@@ -106,6 +108,7 @@ class RecordWalk:
         self.limit, self.grid_um, self.budget, self.inflated = limit, grid_um, inflate_budget, 0
         self.index, self.start, self.cblock, self.free, self.cblocks = 1, 13, None, 1, 0
         self.in_cell, self.seen_cell, self.defined = False, False, 0
+        self.copies, self.rep_weight, self.attach = Copies(100 * limit), 0, None
         self.tables = {k: NameTable(k) for k in _TABLES}
         self.cells: list[tuple] = []  # (by number, number or name, place)
         h = [self._unknown] * 256
@@ -182,6 +185,7 @@ class RecordWalk:
         its ``reserved`` bits clear."""
         if not self.in_cell:
             self._outside(rid)
+        self.attach = None
         info = buf[p]
         if info & reserved:
             raise FieldError(f"{RECORD_NAMES[rid]} info byte {info:08b} has a reserved bit set (mask {reserved:08b})")
@@ -194,6 +198,7 @@ class RecordWalk:
         self.defined |= sets
 
     def _repetition(self, buf, p, what):
+        kind = buf[p]
         n, p = read_repetition(buf, p)
         if n is None:
             if not self.defined & REP:
@@ -201,6 +206,10 @@ class RecordWalk:
         elif n > self.limit:
             raise FieldError(f"repetition of {n:,} {what}, more than the limit of {self.limit:,} shapes "
                              "(set DYNSHARE_MAX_SHAPES)")
+        else:  # gdstk keeps an explicit repetition's offsets (x or y: 8 bytes, both: 16) with every element
+            self.rep_weight = 0 if kind in (1, 2, 3, 8, 9) else (n - 1) * (16 if kind >= 10 else 8)
+        if self.rep_weight:
+            self.copies.add(self.rep_weight)
         self.defined |= REP
         return p
 
@@ -209,14 +218,18 @@ class RecordWalk:
         if number not in used:
             used[number] = self.here()
 
-    def _named(self, buf, p, by_number, kind, form):
+    def _named(self, buf, p, by_number, kind, form, modal):
         """A name given in an element or property: a ``kind`` number (N
-        bit set) or a string of ``form``; returns the position after it."""
+        bit set) or a string of ``form``, now the value of ``modal``;
+        returns the position after it."""
         if by_number:
             number, p = read_uint(buf, p)
             self._use(kind, number)
+            self.copies.set(modal, 0, ((kind, number),) if kind in COPY_TABLES else ())
             return p
-        return read_string(buf, p, form)[1]
+        text, p = read_string(buf, p, form)
+        self.copies.set(modal, len(text) + 1)
+        return p
 
     # -- names and cells ------------------------------------------------------
     def _name(self, buf, p, rid):
@@ -238,6 +251,7 @@ class RecordWalk:
             raise FieldError(f"{kind} number {number} defined twice (first by record {table.defined[number][1][0]})")
         table.defined[number] = (text, self.here())
         self.in_cell, self.defined = False, 0
+        self.attach = number if kind == "TEXTSTRING" else None  # gdstk copies its properties to every label
         if kind == "XNAME":
             _unsupported(rid)
         return p
@@ -249,7 +263,7 @@ class RecordWalk:
             if kind > 4:
                 raise FieldError(f"LAYERNAME {what} interval of unknown type {kind} (0-4)")
             p = skip_ints(buf, p, (0, 1, 1, 1, 2)[kind])
-        self.in_cell, self.defined = False, 0
+        self.in_cell, self.defined, self.attach = False, 0, None
         return p
 
     def _cell(self, buf, p, rid):
@@ -260,7 +274,7 @@ class RecordWalk:
             text, p = read_string(buf, p, "n")
             key = text.decode("ascii")
         self.cells.append((rid == 13, key, self.here()))
-        self.in_cell, self.seen_cell, self.defined = True, True, 0
+        self.in_cell, self.seen_cell, self.defined, self.attach = True, True, 0, None
         return p
 
     # -- elements ---------------------------------------------------------------
@@ -268,10 +282,12 @@ class RecordWalk:
         info = self._info(buf, p, rid)
         p += 1
         if info & 0x80:
-            p = self._named(buf, p, info & 0x40, "CELLNAME", "n")
+            p = self._named(buf, p, info & 0x40, "CELLNAME", "n", "placement-cell")
             self.defined |= PCELL
         elif not self.defined & PCELL:
             self._missing(rid, PCELL)
+        else:
+            self.copies.copy("placement-cell")
         if rid == 18:
             if info & 0x04:
                 _, p = read_real(buf, p)
@@ -284,9 +300,11 @@ class RecordWalk:
         info = self._info(buf, p, rid, 0x80)
         p += 1
         if info & 0x40:
-            p = self._named(buf, p, info & 0x20, "TEXTSTRING", "a")
+            p = self._named(buf, p, info & 0x20, "TEXTSTRING", "a", "text-string")
         self._modal(rid, (0 if info & 0x40 else TSTR) | (0 if info & 1 else TLAYER) | (0 if info & 2 else TTYPE),
                     TSTR | TLAYER | TTYPE)
+        if not info & 0x40:
+            self.copies.copy("text-string")
         p = skip_ints(buf, p, _BITS[info & 0x1B])
         return self._repetition(buf, p, "labels") if info & 0x04 else p
 
@@ -309,7 +327,10 @@ class RecordWalk:
         self._modal(rid, (~info & 3) | (0 if info & 0x20 else PPTS), LAYER | DTYPE | PPTS)
         p = skip_ints(buf, p + 1, _BITS[info & 0x03])
         if info & 0x20:
-            p = skip_point_list(buf, p, 2)
+            n, p = skip_point_list(buf, p, 2)
+            self.copies.set("polygon-point-list", 16 * (n + 2))
+        else:
+            self.copies.copy("polygon-point-list")
         p = skip_ints(buf, p, _BITS[info & 0x18])
         return self._repetition(buf, p, "polygons") if info & 0x04 else p
 
@@ -326,8 +347,11 @@ class RecordWalk:
         else:
             need |= SEXT | EEXT
         self._modal(rid, need, LAYER | DTYPE | HALFW | SEXT | EEXT | HPTS)
-        if info & 0x20:
-            p = skip_point_list(buf, p, 1)
+        if info & 0x20:  # gdstk keeps the spine and builds the path from it: twice the points
+            n, p = skip_point_list(buf, p, 1)
+            self.copies.set("path-point-list", 32 * (n + 1))
+        else:
+            self.copies.copy("path-point-list")
         p = skip_ints(buf, p, _BITS[info & 0x18])
         return self._repetition(buf, p, "paths") if info & 0x04 else p
 
@@ -358,6 +382,9 @@ class RecordWalk:
             radius, p = read_uint(buf, p)
             if radius * self.grid_um > 1e8:
                 raise FieldError(f"CIRCLE radius of {radius * self.grid_um:.3g} um, beyond 100 m")
+            self.copies.set("circle-radius", 16 * circle_vertices(radius))
+        else:
+            self.copies.copy("circle-radius")
         p = skip_ints(buf, p, _BITS[info & 0x18])
         return self._repetition(buf, p, "circles") if info & 0x04 else p
 
@@ -380,30 +407,42 @@ class RecordWalk:
 
     # -- properties and compression -------------------------------------------------
     def _property(self, buf, p, rid):  # 28: UUUUVCNS [name] [count] values; 29: the last one again
+        copies = self.copies
+        before = copies.total
         if rid == 29:
             if ~self.defined & (PNAME | PVALS):
                 self._missing(rid, PNAME | PVALS)
-            return p
-        info = buf[p]
-        p += 1
-        if info & 0x04:
-            p = self._named(buf, p, info & 0x02, "PROPNAME", "n")
-        need = 0 if info & 0x04 else PNAME
-        if info & 0x08:
-            if info & 0xF0:
-                raise FieldError("PROPERTY reuses the last value list (V) yet counts values (UUUU is not 0)")
-            need |= PVALS
-        if need & ~self.defined:
-            self._missing(rid, need)
-        if not info & 0x08:
-            count = info >> 4
-            if count == 15:
-                count, p = read_uint(buf, p)
-            refs: list[int] = []
-            p = skip_property_values(buf, p, count, refs)
-            for number in refs:
-                self._use("PROPSTRING", number)
-        self.defined |= PNAME | PVALS
+            copies.copy("last-property-name")
+            copies.copy("last-value-list")
+        else:
+            info = buf[p]
+            p += 1
+            if info & 0x04:
+                p = self._named(buf, p, info & 0x02, "PROPNAME", "n", "last-property-name")
+            need = 0 if info & 0x04 else PNAME
+            if info & 0x08:
+                if info & 0xF0:
+                    raise FieldError("PROPERTY reuses the last value list (V) yet counts values (UUUU is not 0)")
+                need |= PVALS
+            if need & ~self.defined:
+                self._missing(rid, need)
+            if not info & 0x04:
+                copies.copy("last-property-name")
+            if info & 0x08:
+                copies.copy("last-value-list")
+            else:
+                count = info >> 4
+                if count == 15:
+                    count, p = read_uint(buf, p)
+                refs: list[int] = []
+                text, p = skip_property_values(buf, p, count, refs)
+                for number in refs:
+                    self._use("PROPSTRING", number)
+                copies.set("last-value-list", 32 * count + text, tuple(("PROPSTRING", n) for n in refs))
+            self.defined |= PNAME | PVALS
+        copies.add(32)
+        if self.attach is not None:  # gdstk copies it to every label of this TEXTSTRING
+            copies.attached[self.attach] += copies.total - before
         return p
 
     def _cblock(self, buf, p, rid):

@@ -218,11 +218,11 @@ def read_string(buf, p: int, kind: str) -> tuple[bytes, int]:
     return bytes(buf[p:end]), end
 
 
-def skip_point_list(buf, p: int, fewest: int) -> int:
-    """The position after a point-list with at least ``fewest`` deltas.
+def skip_point_list(buf, p: int, fewest: int) -> tuple[int, int]:
+    """A point-list with at least ``fewest`` deltas: ``(deltas, next position)``.
 
     >>> skip_point_list(b"\\x00\\x02\\x0a\\x14", 0, 2)
-    4
+    (2, 4)
     """
     kind = buf[p]
     if kind > 5:
@@ -232,7 +232,7 @@ def skip_point_list(buf, p: int, fewest: int) -> int:
         raise FieldError(f"point list of {n} deltas; the record needs at least {fewest}")
     if n > len(buf) - p:
         raise FieldError(f"point list of {n:,} deltas runs past the end of the data")
-    return skip_ints(buf, p, n, gdelta=kind >= 4)
+    return n, skip_ints(buf, p, n, gdelta=kind >= 4)
 
 
 def read_repetition(buf, p: int) -> tuple[int | None, int]:
@@ -269,16 +269,18 @@ def read_repetition(buf, p: int) -> tuple[int | None, int]:
     raise FieldError(f"repetition of unknown type {kind} (0-11)")
 
 
-def skip_property_values(buf, p: int, count: int, refs: list) -> int:
-    """The position after ``count`` property values; the PROPSTRING numbers
-    that values of types 13-15 refer to are appended to ``refs``.
+def skip_property_values(buf, p: int, count: int, refs: list) -> tuple[int, int]:
+    """``count`` property values: ``(bytes of their strings, next position)``;
+    the PROPSTRING numbers that values of types 13-15 refer to are appended
+    to ``refs``.
 
     >>> refs = []
     >>> skip_property_values(b"\\x08\\x05\\x0a\\x01x\\x0d\\x03", 0, 3, refs), refs
-    (7, [3])
+    ((1, 7), [3])
     """
     if count > len(buf) - p:
         raise FieldError(f"{count:,} property values run past the end of the data")
+    text = 0
     for _ in range(count):
         kind = buf[p]
         p += 1
@@ -287,10 +289,11 @@ def skip_property_values(buf, p: int, count: int, refs: list) -> int:
         elif kind < 10:
             _, p = read_uint(buf, p)
         elif kind < 13:
-            _, p = read_string(buf, p, "abn"[kind - 10])
+            value, p = read_string(buf, p, "abn"[kind - 10])
+            text += len(value)
         elif kind < 16:
             ref, p = read_uint(buf, p)
             refs.append(ref)
         else:
             raise FieldError(f"property value of unknown type {kind} (0-15)")
-    return p
+    return text, p

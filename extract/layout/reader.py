@@ -142,8 +142,9 @@ def _probe(path: str, is_oas: bool) -> None:
                                "of memory?)")
 
 
-#: OASIS files with more elements, properties and names than this are read once in a child first.
-PROBE_OBJECTS = 1_000_000
+#: OASIS files gdstk needs more bytes than this for (estimated by the grammar check) are read
+#: once in a forked child first.
+PROBE_BYTES = 256 << 20
 
 
 def _load_library(path: str):
@@ -154,13 +155,13 @@ def _load_library(path: str):
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
         check_gds_grammar(path, data)
-    elif check_oasis_grammar(path, data).objects > PROBE_OBJECTS:
+    elif check_oasis_grammar(path, data).memory > PROBE_BYTES:
         # The grammar check rules out every native crash of gdstk found on malformed streams
         # (tests/extract/layout/test_oasis_grammar.py; none in thousands of fuzz cases without this
-        # pre-read).  What it cannot rule out is gdstk running out of memory on a well-formed file
-        # within the limits (it allocates about 250 bytes per element and does not check malloc):
-        # CBLOCKs let a small OASIS file hold millions of elements.  Such files are read in a
-        # forked child first, so that the crash becomes an error line.
+        # pre-read) and bounds what gdstk copies (extract/layout/oasis_memory.py).  It cannot know
+        # the memory there is: gdstk does not check its allocations, so a well-formed file within
+        # every limit can still crash it.  A file it will need much memory for is read in a forked
+        # child first, so that such a crash becomes an error line.
         _probe(path, is_oas)
     with _QuietNative() as quiet:
         try:

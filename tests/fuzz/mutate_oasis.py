@@ -5,9 +5,9 @@ CBLOCKs: byte flips; field mutations between START and END (a byte set to a
 record id or an all-ones info byte, a huge or overlong integer inserted,
 bytes dropped or repeated); the mutated records wrapped in a CBLOCK whose
 sizes may lie; END mutations; and hand-built monsters (repetitions whose
-count wraps in 64 bits, label arrays, decompression bombs, huge circles,
-name numbers, extension records, deep and cyclic hierarchies, coordinates
-beyond reach).  Encodings from the OASIS specification (SEMI P39), from
+count wraps in 64 bits, label arrays, decompression bombs, modal values and
+names that gdstk would copy into every record, huge circles, name numbers,
+extension records, deep and cyclic hierarchies, coordinates beyond reach).  Encodings from the OASIS specification (SEMI P39), from
 memory, through ``tests/helpers/oasis_bytes.py``.
 """
 
@@ -93,7 +93,7 @@ def _monster(rng) -> tuple[bytes, dict]:
     R = ob.rectangle(layer=99)
     label = ob.rec(19, b"\x5b", ob.string("A"), ob.uint(4), ob.uint(10), ob.sint(0), ob.sint(0))
     place = lambda name, rep=b"": ob.rec(17, b"\xb8" if rep else b"\xb0", ob.string(name), ob.sint(0), ob.sint(0)) + rep
-    which = rng.randrange(12)
+    which = rng.randrange(14)
     env: dict = {}
     if which == 0:  # a grid whose count wraps to 0 in 64 bits
         n = ob.uint((1 << 32) - 2)
@@ -131,6 +131,13 @@ def _monster(rng) -> tuple[bytes, dict]:
         n = rng.choice([10_000, 1_000_000])
         deltas = (ob.uint(8 << 2) + ob.uint((8 << 2) | 1)) * (n // 2)
         body = ob.cell() + ob.rec(21, b"\x23", ob.uint(99), ob.uint(0), b"\x02", ob.uint(n), deltas)
+    elif which == 12:  # a modal point list of 100,000 points reused by 50,000 two-byte polygons (80 GB in gdstk)
+        n = 100_000
+        points = b"\x02" + ob.uint(n) + (ob.uint(8 << 2) + ob.uint((8 << 2) | 1)) * (n // 2)
+        body = ob.cell() + ob.rec(21, b"\x23", ob.uint(99), ob.uint(0), points) + ob.cblock(b"\x15\x00" * 50_000, 9)
+    elif which == 13:  # a 100 kB TEXTSTRING used by 50,000 labels, by number or as the modal text
+        body = (ob.rec(5, ob.string(b"A" * 100_000)) + ob.cell() + ob.cblock(ob.rec(
+            19, b"\x7b", ob.uint(0), ob.uint(4), ob.uint(10), ob.sint(0), ob.sint(0)) + b"\x13\x00" * 50_000, 9))
     else:  # text labels with odd bytes (a-strings are printable ASCII)
         text = rng.choice([b"VDD\x01", "caf\u00e9".encode(), b"A\nB", b""])
         body = ob.cell() + R + ob.rec(19, b"\x5b", ob.string(text), ob.uint(4), ob.uint(10), ob.sint(0), ob.sint(0))

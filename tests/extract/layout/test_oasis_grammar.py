@@ -290,16 +290,48 @@ def test_circle_radius_within_100_m():
 
 # ------------------------------------------------------------------ the reader
 
+@pytest.mark.parametrize("case", ["point list", "text", "text number", "circle", "repetition", "property"])
+def test_what_gdstk_copies_per_record_is_bounded(monkeypatch, case):
+    # gdstk copies a reused modal value into every element, and a name into every reference by
+    # number (read in its source; 100 kB files of this kind crashed it under a 3 GB cap): the
+    # copies may take 100 bytes per allowed shape, here 1000 shapes: 100,000 bytes
+    n_list = 100
+    files = {
+        # 100 points (16 bytes each, 2 more for the start and the closing point) x 100 polygons
+        "point list": cell() + rec(21, b"\x23", uint(1), uint(0), b"\x02", uint(n_list),
+                                   (uint(8 << 2) + uint((8 << 2) | 1)) * (n_list // 2)) + b"\x15\x00" * 100,
+        # a 1000-character text x 200 labels
+        "text": cell() + rec(19, b"\x5b", string("A" * 1000), uint(1), uint(2), sint(0), sint(0)) + b"\x13\x00" * 200,
+        # the same through TEXTSTRING number 0: counted when the names are known, at END
+        "text number": rec(5, string("A" * 1000)) + cell()
+        + rec(19, b"\x7b", uint(0), uint(1), uint(2), sint(0), sint(0)) + b"\x13\x00" * 200,
+        # radius 10^6 grid steps: pi / acos(1 - 1e-6) = 2222 vertices, 35.5 kB a circle, x 4
+        "circle": cell() + rec(27, b"\x3b", uint(1), uint(0), uint(10**6), sint(0), sint(0)) + b"\x1b\x00" * 3,
+        # an explicit repetition of 501 positions (500 offsets, 16 bytes each) x 15 rectangles
+        "repetition": cell() + rectangle(repetition=b"\x0a" + uint(499) + uint(8) * 500)
+        + rec(20, b"\x04", b"\x00") * 14,
+        # a property value of 5000 characters, repeated by 30 records 29
+        "property": cell() + R + rec(28, b"\x14", string("P"), b"\x0b", string("x" * 5000)) + rec(29) * 30,
+    }
+    data = file(files[case])
+    check_oasis_grammar("x.oas", data)  # within the default limit (20 million shapes: 2 GB)
+    monkeypatch.setenv("DYNSHARE_MAX_SHAPES", "1000")
+    line = refused(data, "gdstk would copy", "set DYNSHARE_MAX_SHAPES")
+    assert line.startswith("x.oas: record ")
+    if case == "text number":  # placed at the first use of the number
+        assert "record 4 (byte 1030): gdstk would copy 201 kB" in line, line
+
+
 def test_files_of_many_elements_are_read_in_a_child_first(tmp_path, monkeypatch):
-    # gdstk does not check its allocations: a file too big for the memory crashes it; above
-    # PROBE_OBJECTS elements the file is read in a forked child first (here: a child that dies)
+    # gdstk does not check its allocations: a file too big for the memory crashes it; when the
+    # estimate passes PROBE_BYTES the file is read in a forked child first (here: a child that dies)
     import signal
 
     import extract.layout.reader as reader
 
     path = tmp_path / "many.oas"
     path.write_bytes(file(cell() + R * 3))
-    monkeypatch.setattr(reader, "PROBE_OBJECTS", 3)
+    monkeypatch.setattr(reader, "PROBE_BYTES", 3 * 200)
     monkeypatch.setattr(gdstk, "read_oas", lambda *a, **k: os.kill(os.getpid(), signal.SIGKILL))
     with pytest.raises(InputError, match=r"many.oas: the OASIS reader \(gdstk\) died on this file \(signal 9"):
         open_layout(str(path))

@@ -22,6 +22,8 @@ TOML nesting depth           100                    –
 layout file size             4 GiB                  –
 OASIS CBLOCKs inflated       64 x file size + 1 MiB –
   (1 GiB each; :data:`extract.layout.oasis.MAX_INFLATION`)
+OASIS: bytes gdstk copies    100 per allowed shape  ``DYNSHARE_MAX_SHAPES``
+  (:mod:`extract.layout.oasis_memory`)
 netlist file size            256 MiB                –
 tech or constraints file     16 MiB                 –
 ==========================  =====================  ==========================

@@ -7,8 +7,9 @@ bytes dropped or repeated); the mutated records wrapped in a CBLOCK whose
 sizes may lie; END mutations; and hand-built monsters (repetitions whose
 count wraps in 64 bits, label arrays, decompression bombs, modal values and
 names that gdstk would copy into every record, huge circles, name numbers,
-extension records, deep and cyclic hierarchies, coordinates beyond reach).  Encodings from the OASIS specification (SEMI P39), from
-memory, through ``tests/helpers/oasis_bytes.py``.
+extension records, deep and cyclic hierarchies, coordinates beyond reach).
+Encodings from the OASIS specification (SEMI P39), from memory, through
+``tests/helpers/oasis_bytes.py``.
 """
 
 from __future__ import annotations

@@ -9,6 +9,9 @@ limit                        default                environment variable
 ==========================  =====================  ==========================
 shapes of a flattened cell   20 000 000             ``DYNSHARE_MAX_SHAPES``
   (polygons, paths and text labels, every array and repetition counted)
+OASIS: elements, properties the shape limit        ``DYNSHARE_MAX_SHAPES``
+  and names of a file, and placements of one repetition (checked by
+  :mod:`extract.layout.oasis` before gdstk reads the file)
 text labels of a flattened   1 000 000              ``DYNSHARE_MAX_LABELS``
   cell (each label is a Python object: slower than a shape)
 devices of a netlist cell    2 000 000              ``DYNSHARE_MAX_DEVICES``
@@ -17,6 +20,10 @@ devices of a netlist cell    2 000 000              ``DYNSHARE_MAX_DEVICES``
 subcircuit nesting depth     200                    –
 TOML nesting depth           100                    –
 layout file size             4 GiB                  –
+OASIS CBLOCKs inflated       64 x file size + 1 MiB –
+  (1 GiB each; :data:`extract.layout.oasis.MAX_INFLATION`)
+OASIS: bytes gdstk copies    100 per allowed shape  ``DYNSHARE_MAX_SHAPES``
+  (:mod:`extract.layout.oasis_memory`)
 netlist file size            256 MiB                –
 tech or constraints file     16 MiB                 –
 ==========================  =====================  ==========================

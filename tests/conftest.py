@@ -2,7 +2,8 @@ import os
 import sys
 
 # Let tests import the shared helpers in tests/helpers (ngspice_run, drawing,
-# sharing_circuits, stage_circuits, spice_reference, browser, writer_fixtures, sky130_pdk).
+# sharing_circuits, stage_circuits, spice_reference, browser, writer_fixtures, sky130_pdk,
+# oasis_bytes, rich_layout).
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "helpers"))
 
 

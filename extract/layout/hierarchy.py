@@ -225,10 +225,10 @@ def extract_hierarchical(layout: LayoutFile, tech: Tech, cell: str | None, wante
         all_g = [g for arr in s.values() for g in arr] + [shapely.Point(x, y) for _, x, y, _ in labs]
         bounds.append(shapely.total_bounds(np.asarray(all_g, dtype=object)) if all_g else np.full(4, np.nan))
     bounds = np.asarray(bounds)[cell_of] + np.c_[offs, offs]
-    ok = ~np.isnan(bounds[:, 0])
-    boxes = shapely.box(*np.nan_to_num(bounds).T)
-    i, j = shapely.STRtree(boxes).query(boxes, predicate="intersects")
-    keep = (i < j) & ok[i] & ok[j]
+    live = np.flatnonzero(~np.isnan(bounds[:, 0]))  # instances of cells with nothing on the tech layers: none
+    boxes = shapely.box(*bounds[live].T)
+    i, j = (live[k] for k in shapely.STRtree(boxes).query(boxes, predicate="intersects"))
+    keep = i < j
     i, j = i[keep], j[keep]
 
     joins, fixes, members = [], [], []

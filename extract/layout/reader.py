@@ -7,9 +7,8 @@ with their cell), and every coordinate is converted to µm using the
 file's own user unit, then snapped to the file's database grid.
 
 A GDSII stream is checked against the record grammar first
-(:mod:`extract.layout.gdsii`), so gdstk only reads well-formed streams; an
-OASIS file is read once in a forked child first, so that a native crash
-becomes an error.  Problems — a missing or unreadable file, a truncated or
+(:mod:`extract.layout.gdsii`), an OASIS file likewise
+(:mod:`extract.layout.oasis`), so gdstk only reads well-formed streams.  Problems — a missing or unreadable file, a truncated or
 corrupt stream, a
 reference cycle, a reference to a cell that is not in the file, a cell
 name that does not exist — raise :class:`extract.errors.InputError`.
@@ -29,6 +28,7 @@ from extract.errors import InputError
 from extract.inputfile import read_input
 from extract.limits import MAX_LABELS, MAX_LAYOUT_BYTES, MAX_SHAPES, env_limit
 from extract.layout.gdsii import check_gds_grammar
+from extract.layout.oasis import check_oasis_grammar
 
 __all__ = ["FlatLabel", "FlatLayout", "LayoutFile", "open_layout", "flatten_cell", "read_layout", "top_cells"]
 
@@ -108,9 +108,10 @@ class _QuietNative:
 def _probe(path: str, is_oas: bool) -> None:
     """Read the file once in a forked child first.
 
-    gdstk is a C library: some corrupt files make it crash the process
-    instead of raising.  A crash in the child becomes a clean error here;
-    where ``fork`` is not available nothing is probed.
+    gdstk is a C library that does not check its allocations: a file too
+    big for the memory there is crashes the process instead of raising.  A
+    crash in the child becomes a clean error here; where ``fork`` is not
+    available nothing is probed.
     """
     if not hasattr(os, "fork"):
         return
@@ -137,7 +138,13 @@ def _probe(path: str, is_oas: bool) -> None:
     _, status = os.waitpid(pid, 0)
     if os.WIFSIGNALED(status):
         kind = "OASIS" if is_oas else "GDSII"
-        raise InputError(path, f"corrupt {kind} file (the reader failed on its contents)")
+        raise InputError(path, f"the {kind} reader (gdstk) died on this file (signal {os.WTERMSIG(status)}; out "
+                               "of memory?)")
+
+
+#: OASIS files gdstk needs more bytes than this for (estimated by the grammar check) are read
+#: once in a forked child first.
+PROBE_BYTES = 256 << 20
 
 
 def _load_library(path: str):
@@ -148,8 +155,14 @@ def _load_library(path: str):
     is_oas = ext in (".oas", ".oasis") or data[:13] == b"%SEMI-OASIS\r\n"
     if not is_oas:
         check_gds_grammar(path, data)
-    else:
-        _probe(path, is_oas)  # no grammar check for OASIS yet: a native crash is caught in a child
+    elif check_oasis_grammar(path, data).memory > PROBE_BYTES:
+        # The grammar check rules out every native crash of gdstk found on malformed streams
+        # (tests/extract/layout/test_oasis_grammar.py; none in thousands of fuzz cases without this
+        # pre-read) and bounds what gdstk copies (extract/layout/oasis_memory.py).  It cannot know
+        # the memory there is: gdstk does not check its allocations, so a well-formed file within
+        # every limit can still crash it.  A file it will need much memory for is read in a forked
+        # child first, so that such a crash becomes an error line.
+        _probe(path, is_oas)
     with _QuietNative() as quiet:
         try:
             lib = gdstk.read_oas(path, unit=1e-6) if is_oas else gdstk.read_gds(path, unit=1e-6)
@@ -245,6 +258,30 @@ def _check_tree(path: str, graph: dict[str, list[str]], start: str) -> None:
             stack.append((child, iter(graph[child])))
 
 
+def _a_cycle(graph: dict[str, list[str]]) -> list[str]:
+    """A reference cycle of a graph in which every cell is referenced, each
+    cell referencing the next: from the first cell, parents are followed
+    until one repeats (every cell has one); the cycle starts at its first
+    name.  O(cells + references).
+
+    >>> _a_cycle({"A": ["B", "L"], "B": ["A"], "L": []})
+    ['A', 'B', 'A']
+    """
+    parent: dict[str, str] = {}
+    for name, children in graph.items():
+        for child in children:
+            parent.setdefault(child, name)
+    name, seen, order = min(graph), {}, []
+    while name not in seen:
+        seen[name] = len(order)
+        order.append(name)
+        name = parent[name]
+    cycle = order[seen[name]:][::-1]
+    first = cycle.index(min(cycle))
+    cycle = cycle[first:] + cycle[:first]
+    return cycle + [cycle[0]]
+
+
 def top_cells(graph: dict[str, list[str]]) -> list[str]:
     """Cells that no other cell references, sorted.
 
@@ -309,7 +346,9 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
         tops = top_cells(graph)
         if len(tops) != 1:
             if not tops:
-                raise InputError(path, "has no top cell (every cell is referenced; a reference cycle?)")
+                cycle = _a_cycle(graph)
+                raise InputError(path, "has no top cell: every cell is referenced (reference cycle: "
+                                       + " -> ".join(cycle) + ")", f"cell {cycle[0]}")
             listing = ", ".join(tops[:20]) + (" ..." if len(tops) > 20 else "")
             raise InputError(path, f"has {len(tops)} top cells, choose one with --cell: {listing}")
         cell = tops[0]
@@ -322,12 +361,14 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
     wanted = None if layers is None else {tuple(x) for x in layers}
     flat = FlatLayout(path=path, cell=cell, grid_um=grid_um)
     with _QuietNative():
-        polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        if wanted is None:
+            polys = top.get_polygons(apply_repetitions=True, include_paths=True, depth=None)
+        else:  # gdstk filters: shapes on other layers never become Python objects
+            polys = [poly for layer, datatype in sorted(wanted) for poly in top.get_polygons(
+                apply_repetitions=True, include_paths=True, depth=None, layer=layer, datatype=datatype)]
         labels = top.get_labels(apply_repetitions=True, depth=None)
     for poly in polys:
         key = (int(poly.layer), int(poly.datatype))
-        if wanted is not None and key not in wanted:
-            continue
         pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
         if len(pts) >= 3:
             flat.polygons.setdefault(key, []).append(pts)

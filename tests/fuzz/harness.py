@@ -20,6 +20,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import re
 import resource
 import signal
 import shutil
@@ -27,7 +28,18 @@ import tempfile
 import time
 from dataclasses import dataclass
 
-__all__ = ["Verdict", "run_case", "run_many"]
+__all__ = ["Verdict", "run_case", "run_many", "names_no_place"]
+
+#: A layout error names its place: a record and byte offset, a cell, or byte 0 (not a layout at all).
+#: Source: the README, "Hostile and broken inputs" (``error: FILE: PLACE: what``).
+PLACE = re.compile(r"error: cell\.(gds|oas): (record \d+ \(byte \d+|cell \S|byte 0:)")
+
+
+def names_no_place(verdict) -> bool:
+    """A layout run that ended in an error line naming no place (choosing
+    among several top cells is a question, not a fault: it needs none)."""
+    return (verdict.kind in ("gds", "oasis") and verdict.status == 2 and not PLACE.match(verdict.stderr)
+            and "top cells, choose one with --cell" not in verdict.stderr)
 
 
 @dataclass

@@ -6,7 +6,8 @@ and the environment.  The same seed gives the same case on every machine.
 
 Kinds: ``gds`` (byte, record-type, data-type, length and splice mutations of
 a GDSII stream, and gdstk-built monsters: huge arrays, label arrays, deep
-hierarchies), ``oasis`` (byte mutations of an OASIS file), ``tech`` (numbers
+hierarchies), ``oasis`` (byte, field, CBLOCK and END mutations of an OASIS
+file and hand-built monsters, see ``mutate_oasis.py``), ``tech`` (numbers
 swapped for extreme values, keys dropped, deep nesting, broken bytes),
 ``spice`` (multipliers, deep and wide hierarchies, line mutations),
 ``constraints`` (the constraints TOML), ``args`` (odd arguments, outputs and
@@ -20,7 +21,12 @@ import io
 import os
 import random
 import struct
+import sys
 from dataclasses import dataclass, field
+
+sys.path.insert(0, os.path.dirname(__file__))
+
+from mutate_oasis import oasis_mutation  # noqa: E402
 
 __all__ = ["Case", "KINDS", "base_files", "make_case"]
 
@@ -43,15 +49,17 @@ class Case:
 
 
 def base_files() -> dict[str, bytes]:
-    """The samples every mutation starts from: one cell as GDSII and OASIS,
-    the dsk18 tech file, its schematic, a constraints file."""
+    """The samples every mutation starts from: one cell as GDSII and OASIS
+    (``cell.oas`` with CBLOCKs, ``cell0.oas`` without), the dsk18 tech file,
+    its schematic, a constraints file."""
     import gdstk
 
     lib = gdstk.read_gds(os.path.join(SAMPLES, "dsk18_cells.gds"))
     one = gdstk.Library(unit=1e-6, precision=1e-9)
     one.add(next(c for c in lib.cells if c.name == CELL))
     out = {}
-    for name, writer in (("cell.gds", one.write_gds), ("cell.oas", one.write_oas)):
+    for name, writer in (("cell.gds", one.write_gds), ("cell.oas", one.write_oas),
+                         ("cell0.oas", lambda p: one.write_oas(p, compression_level=0))):
         path = os.path.join(os.environ.get("TMPDIR", "/tmp"), f"dynshare-fuzz-{os.getpid()}-{name}")
         writer(path)
         with open(path, "rb") as fh:
@@ -217,17 +225,18 @@ def _spice_mutation(rng, text: bytes) -> bytes:
 
 def _layout_case(kind, seed, rng, base) -> Case:
     name = "cell.gds" if kind == "gds" else "cell.oas"
+    env: dict = {}
     if kind == "gds":
         r = rng.random()
         data = (_gds_record_mutation(rng, base[name]) if r < 0.6 else _flip(rng, base[name]) if r < 0.9
                 else _gds_monster(rng))
     else:
-        data = _flip(rng, base[name], rng.randint(1, 6))
+        data, env = oasis_mutation(rng, base)
     cmd = rng.choice(["extract", "check", "check"])
     argv = [cmd, name, "--tech", "tech.toml", "--json", "r.json"]
     if rng.random() < 0.5 and data is not base[name]:
         argv += ["--cell", CELL] if rng.random() < 0.7 else []
-    return Case(kind, seed, argv, {name: data, "tech.toml": base["tech.toml"]}, outputs=["r.json"])
+    return Case(kind, seed, argv, {name: data, "tech.toml": base["tech.toml"]}, env, outputs=["r.json"])
 
 
 def _tech_case(seed, rng, base) -> Case:

@@ -4,7 +4,8 @@ under a 4 GB address-space cap and a 30 s time cap.
 Source of the promises checked (``harness.py``): the README, "Hostile and
 broken inputs" — no crash, no hang, no internal error, one error line under
 300 characters with exit 2, strict JSON, the outputs of a run all or none,
-inputs untouched, no temporary file left.  The cases are seeded
+inputs untouched, no temporary file left; and a GDSII or OASIS refusal names
+its place (record and byte, or cell).  The cases are seeded
 (``mutate.make_case(kind, seed)``), so a failure names its seed and
 ``python3 tests/fuzz/run_fuzz.py --kind KIND --seed SEED`` replays it.
 ``DYNSHARE_FUZZ_CASES`` sets the number per kind (default 200).
@@ -17,7 +18,7 @@ import pytest
 
 sys.path.insert(0, os.path.dirname(__file__))
 
-from harness import run_many  # noqa: E402
+from harness import names_no_place, run_many  # noqa: E402
 from mutate import KINDS, base_files, make_case  # noqa: E402
 
 CASES = int(os.environ.get("DYNSHARE_FUZZ_CASES", "200"))
@@ -35,6 +36,9 @@ def test_mutated_inputs_keep_every_promise(kind, base):
     bad = [f"seed {v.seed}: {v.problem}: {' '.join(repr(a)[:40] for a in c.argv)} | {v.stderr[:200]}"
            for v, c in zip(verdicts, cases) if v.problem]
     assert not bad, f"{len(bad)} of {CASES} {kind} cases broke a promise:\n" + "\n".join(bad[:20])
+    # a layout refusal also says where (no native crash is checked above, with every other promise)
+    unplaced = [f"seed {v.seed}: {v.stderr[:200]}" for v in verdicts if names_no_place(v)]
+    assert not unplaced, f"{len(unplaced)} {kind} errors name no place:\n" + "\n".join(unplaced[:20])
     # the suite must exercise both outcomes, or it tests nothing
     statuses = {v.status for v in verdicts}
     assert 2 in statuses and (kind in ("gds", "oasis") or statuses & {0, 1}), statuses

@@ -6,6 +6,8 @@ Modules: :mod:`~analyze.search.constraints` (the constraints file),
 the start of evaluation),
 :mod:`~analyze.search.worstcase` (brute force and branch-and-bound),
 :mod:`~analyze.search.flags` (nodes that need a precharge device),
+:mod:`~analyze.search.contexts` (a stage's context key: the analysis once
+per distinct context, results renamed),
 :mod:`~analyze.search.analysis` (the public entry points).
 
 May import: :mod:`extract`, :mod:`analyze.stages`, :mod:`analyze.physics`.

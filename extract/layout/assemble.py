@@ -131,13 +131,7 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     g_points = c_pts[pick] if n_groups else np.empty((0, 2))
     g_diff, g_area = c_diff[pick], c_area[pick]
 
-    g_texts: list[set] = [set() for _ in range(n_groups)]
-    for (u, off), b in zip(placements, base):
-        labelled = [k for k, t in enumerate(u.texts) if t]
-        for i in range(len(off)):
-            start = int(b) + i * u.n
-            for k in labelled:
-                g_texts[group[start + k]].update(u.texts[k])
+    g_texts = _group_texts(placements, base, group, n_groups)
     names, name_findings = names_from_texts(g_texts, g_points, tech.role_of)
 
     # one net per name: parts summed, location from the best group
@@ -148,34 +142,32 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     sums = np.zeros((len(distinct), 6))
     np.add.at(sums, per_unit_name, cap)
     nets: dict[str, Net] = {}
-    for k, name in enumerate(distinct.tolist()):
-        x, y = g_points[loc[k]]
-        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]),
-                         location_um=(round(float(x), 6), round(float(y), 6)))
+    role_of = tech.role_of
+    net_list = []
+    for name, parts, (x, y) in zip(distinct.tolist(), sums.tolist(), g_points[loc].tolist()):
+        net = nets[name] = Net(name, role_of(name), CapParts(*parts), location_um=(round(x, 6), round(y, 6)))
+        net_list.append(net)
     for g, texts in enumerate(g_texts):
         if texts:
             net = nets[names[g]]
             net.labels = tuple(sorted(set(net.labels) | texts))
             net.labelled = True
+    del g_texts
     unit_name = distinct[per_unit_name]
     single = len(placements) == 1 and len(placements[0][1]) == 1
     shape_lists = {name: [] for name in nets} if single else PlacedShapes(placements, base, unit_name, list(nets))
+    _add_junctions(placements, base, per_unit_name, net_list)
     findings: list[Finding] = []
     for (u, off), b in zip(placements, base):
-        with_junctions = [k for k, jn in enumerate(u.junctions) if jn]
         for i, (dx, dy) in enumerate(off.tolist()):
-            start = int(b) + i * u.n
-            for k in with_junctions:
-                net = nets[unit_name[start + k]]
-                for t, geo in u.junctions[k].items():
-                    net.junctions[t] = net.junctions.get(t, JunctionGeometry()) + geo
             for f in u.findings:
                 loc_f = None if f.location_um is None else (f.location_um[0] + dx, f.location_um[1] + dy)
                 findings.append(Finding(f.message, loc_f))
             if shapes and single:
+                start = int(b) + i * u.n
                 _place_shapes(u, dx, dy, unit_name[start : start + u.n], shape_lists)
     findings.extend(name_findings)
-    devices = _devices(placements, base, unit_name, nets, tech)
+    devices = _devices(placements, base, unit_name, per_unit_name, net_list, tech)
     return Circuit(cell=cell, nets=dict(sorted(nets.items())), devices=devices, findings=findings, source=path,
                    shapes=shape_lists if shapes else {})
 
@@ -232,7 +224,83 @@ def _place_shapes(u: CellUnits, dx: float, dy: float, unit_names, shape_lists) -
             shape_lists[unit_names[k]].extend(zip([l for l, _ in items], moved))
 
 
-def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
+_NO_TEXTS = frozenset()
+
+
+def _group_texts(placements, base, group, n_groups) -> list:
+    """The label texts on each group of joined units: a set per labelled
+    group, an empty frozenset (shared) for every other."""
+    texts: list = [_NO_TEXTS] * n_groups
+    for (u, off), b in zip(placements, base):
+        pairs = [(k, t) for k, tx in enumerate(u.texts) for t in tx]
+        if not pairs:
+            continue
+        ks = np.array([k for k, _ in pairs], dtype=np.intp)
+        starts = int(b) + np.arange(len(off), dtype=np.intp) * u.n
+        groups = group[(starts[:, None] + ks[None, :]).ravel()].tolist()
+        words = [t for _, t in pairs] * len(off)
+        for g, t in zip(groups, words):
+            got = texts[g]
+            if got is _NO_TEXTS:
+                texts[g] = {t}
+            else:
+                got.add(t)
+    return texts
+
+
+def _add_junctions(placements, base, per_unit_name, nets: list) -> None:
+    """Sum every placed unit's junction geometry into its net.
+
+    Per net and device type the parts are added in the order placement,
+    instance, unit (``numpy.add.at`` is unbuffered and goes in index
+    order), from 0, as a running ``JunctionGeometry`` sum would; the
+    types of a net's dict come in the order first met."""
+    idx, kinds, vals = [], [], []
+    for (u, off), b in zip(placements, base):
+        rows = [(k, t, (g.area_um2, g.field_perimeter_um, g.gate_perimeter_um))
+                for k, jn in enumerate(u.junctions) if jn for t, g in jn.items()]
+        if not rows:
+            continue
+        ks = np.array([k for k, _, _ in rows], dtype=np.intp)
+        starts = int(b) + np.arange(len(off), dtype=np.intp) * u.n
+        idx.append(per_unit_name[(starts[:, None] + ks[None, :]).ravel()])
+        kinds.append(np.tile(np.array([t for _, t, _ in rows], dtype=object), len(off)))
+        vals.append(np.tile(np.array([v for _, _, v in rows], dtype=float), (len(off), 1)))
+    if not idx:
+        return
+    idx, kinds, vals = np.concatenate(idx), np.concatenate(kinds), np.concatenate(vals)
+    order = np.arange(len(idx))
+    per_type = []
+    for t in dict.fromkeys(kinds.tolist()):
+        sel = kinds == t
+        acc = np.zeros((len(nets), 3))
+        np.add.at(acc, idx[sel], vals[sel])
+        first = np.full(len(nets), len(idx))
+        np.minimum.at(first, idx[sel], order[sel])
+        per_type.append((t, acc, first))
+    if len(per_type) == 1:
+        t, acc, first = per_type[0]
+        for k in np.flatnonzero(first < len(idx)).tolist():
+            nets[k].junctions = {t: JunctionGeometry(*acc[k].tolist())}
+        return
+    firsts = np.stack([f for _, _, f in per_type])
+    for k in np.flatnonzero((firsts < len(idx)).any(axis=0)).tolist():
+        seen = sorted((int(firsts[j, k]), j) for j in range(len(per_type)) if firsts[j, k] < len(idx))
+        nets[k].junctions = {per_type[j][0]: JunctionGeometry(*per_type[j][1][k].tolist()) for _, j in seen}
+
+
+def _rounded(values, digits: int) -> list:
+    """``round(float(v), digits)`` of every value, as Python floats;
+    Python's rounding is run once per distinct value (bit pattern)."""
+    v = np.ascontiguousarray(values, dtype=float)
+    bits, inverse = np.unique(v.view(np.int64), return_inverse=True)
+    once = np.array([round(x, digits) for x in bits.view(np.float64).tolist()])
+    return once[inverse.ravel()].tolist()
+
+
+def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> list[Device]:
+    """The placed devices, numbered by position, drain first (not the rail,
+    else the earlier name); numbers rounded as Python's ``round`` does."""
     cols: dict[str, list] = {k: [] for k in ("type", "gate", "a", "b", "w", "l", "x", "y",
                                               "area_a", "perim_a", "area_b", "perim_b")}
     for (u, off), b in zip(placements, base):
@@ -251,26 +319,23 @@ def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
         return []
     c = {k: np.concatenate(v) for k, v in cols.items()}
     order = np.lexsort((np.round(c["y"], 6), np.round(c["x"], 6)))
-    gate, a, b = unit_name[c["gate"]], unit_name[c["a"]], unit_name[c["b"]]
-    models = {t: (mos.models[0] if mos.models else None) for t, mos in tech.mos.items()}
-    role = {name: net.role for name, net in nets.items()}
-    devices = []
-    for n, i in enumerate(order.tolist()):
-        t = c["type"][i]
-        rail = "ground" if t == "nmos" else "power"
-        ea = (role[a[i]] == rail, a[i])
-        eb = (role[b[i]] == rail, b[i])
-        if ea <= eb:  # drain first: not the rail, else the earlier name
-            dn, ad, pd, sn, as_, ps = a[i], c["area_a"][i], c["perim_a"][i], b[i], c["area_b"][i], c["perim_b"][i]
-        else:
-            dn, ad, pd, sn, as_, ps = b[i], c["area_b"][i], c["perim_b"][i], a[i], c["area_a"][i], c["perim_a"][i]
-        devices.append(Device(
-            name=f"M{n + 1}", type=t, drain=dn, gate=gate[i], source=sn,
-            w_um=round(float(c["w"][i]), 9), l_um=round(float(c["l"][i]), 9),
-            ad_um2=round(float(ad), 9), as_um2=round(float(as_), 9),
-            pd_um=round(float(pd), 9), ps_um=round(float(ps), 9),
-            location_um=(round(float(c["x"][i]), 6), round(float(c["y"][i]), 6)),
-            model=models[t],
-        ))
-    return devices
-
+    n = len(order)
+    t = c["type"][order]
+    ga, ua, ub = c["gate"][order], c["a"][order], c["b"][order]
+    ia, ib = per_unit_name[ua], per_unit_name[ub]
+    role = np.array([net.role for net in nets], dtype=object)
+    rail = np.where(t == "nmos", "ground", "power")
+    ra, rb = role[ia] == rail, role[ib] == rail
+    a_first = (ra < rb) | ((ra == rb) & (ia <= ib))  # names sort as their indices
+    pick = lambda x, y: np.where(a_first, c[x][order], c[y][order])  # noqa: E731
+    drain = unit_name[np.where(a_first, ua, ub)].tolist()
+    source = unit_name[np.where(a_first, ub, ua)].tolist()
+    models = {k: (mos.models[0] if mos.models else None) for k, mos in tech.mos.items()}
+    types = t.tolist()
+    return list(map(
+        Device, [f"M{k}" for k in range(1, n + 1)], types, drain, unit_name[ga].tolist(), source,
+        _rounded(c["w"][order], 9), _rounded(c["l"][order], 9),
+        _rounded(pick("area_a", "area_b"), 9), _rounded(pick("area_b", "area_a"), 9),
+        _rounded(pick("perim_a", "perim_b"), 9), _rounded(pick("perim_b", "perim_a"), 9),
+        list(zip(_rounded(c["x"][order], 6), _rounded(c["y"][order], 6))), [models[k] for k in types],
+    ))

@@ -144,8 +144,10 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     nets: dict[str, Net] = {}
     role_of = tech.role_of
     net_list = []
-    for name, parts, (x, y) in zip(distinct.tolist(), sums.tolist(), g_points[loc].tolist()):
-        net = nets[name] = Net(name, role_of(name), CapParts(*parts), location_um=(round(x, 6), round(y, 6)))
+    parts = _floats(sums)
+    points = _floats(g_points[loc], 6)
+    for name, six, xy in zip(distinct.tolist(), zip(*[iter(parts)] * 6), zip(*[iter(points)] * 2)):
+        net = nets[name] = Net(name, role_of(name), CapParts(*six), location_um=xy)
         net_list.append(net)
     for g, texts in enumerate(g_texts):
         if texts:
@@ -278,24 +280,37 @@ def _add_junctions(placements, base, per_unit_name, nets: list) -> None:
         first = np.full(len(nets), len(idx))
         np.minimum.at(first, idx[sel], order[sel])
         per_type.append((t, acc, first))
-    if len(per_type) == 1:
-        t, acc, first = per_type[0]
-        for k in np.flatnonzero(first < len(idx)).tolist():
-            nets[k].junctions = {t: JunctionGeometry(*acc[k].tolist())}
-        return
     firsts = np.stack([f for _, _, f in per_type])
-    for k in np.flatnonzero((firsts < len(idx)).any(axis=0)).tolist():
-        seen = sorted((int(firsts[j, k]), j) for j in range(len(per_type)) if firsts[j, k] < len(idx))
-        nets[k].junctions = {per_type[j][0]: JunctionGeometry(*per_type[j][1][k].tolist()) for _, j in seen}
+    has = firsts < len(idx)
+    geos = []
+    for j, (_, acc, _) in enumerate(per_type):
+        rows = np.flatnonzero(has[j])
+        three = _floats(acc[rows])
+        geo = [None] * len(nets)
+        for k, a, f, g in zip(rows.tolist(), three[0::3], three[1::3], three[2::3]):
+            geo[k] = JunctionGeometry(a, f, g)
+        geos.append(geo)
+    if len(per_type) == 1:
+        t, geo = per_type[0][0], geos[0]
+        for k in np.flatnonzero(has[0]).tolist():
+            nets[k].junctions = {t: geo[k]}
+        return
+    for k in np.flatnonzero(has.any(axis=0)).tolist():
+        seen = sorted((int(firsts[j, k]), j) for j in range(len(per_type)) if has[j, k])
+        nets[k].junctions = {per_type[j][0]: geos[j][k] for _, j in seen}
 
 
-def _rounded(values, digits: int) -> list:
-    """``round(float(v), digits)`` of every value, as Python floats;
-    Python's rounding is run once per distinct value (bit pattern)."""
-    v = np.ascontiguousarray(values, dtype=float)
+def _floats(values, digits: int | None = None) -> list:
+    """The values (row by row) as Python floats, ``round(v, digits)``
+    when ``digits`` is given; one float object per distinct value (bit
+    pattern), so that a block's repeated numbers are stored once and
+    Python's rounding runs once per value."""
+    v = np.ascontiguousarray(values, dtype=float).ravel()
     bits, inverse = np.unique(v.view(np.int64), return_inverse=True)
-    once = np.array([round(x, digits) for x in bits.view(np.float64).tolist()])
-    return once[inverse.ravel()].tolist()
+    once = bits.view(np.float64).tolist()
+    if digits is not None:
+        once = [round(x, digits) for x in once]
+    return list(map(once.__getitem__, inverse.ravel().tolist()))
 
 
 def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> list[Device]:
@@ -334,8 +349,8 @@ def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> li
     types = t.tolist()
     return list(map(
         Device, [f"M{k}" for k in range(1, n + 1)], types, drain, unit_name[ga].tolist(), source,
-        _rounded(c["w"][order], 9), _rounded(c["l"][order], 9),
-        _rounded(pick("area_a", "area_b"), 9), _rounded(pick("area_b", "area_a"), 9),
-        _rounded(pick("perim_a", "perim_b"), 9), _rounded(pick("perim_b", "perim_a"), 9),
-        list(zip(_rounded(c["x"][order], 6), _rounded(c["y"][order], 6))), [models[k] for k in types],
+        _floats(c["w"][order], 9), _floats(c["l"][order], 9),
+        _floats(pick("area_a", "area_b"), 9), _floats(pick("area_b", "area_a"), 9),
+        _floats(pick("perim_a", "perim_b"), 9), _floats(pick("perim_b", "perim_a"), 9),
+        list(zip(_floats(c["x"][order], 6), _floats(c["y"][order], 6))), [models[k] for k in types],
     ))

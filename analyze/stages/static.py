@@ -50,7 +50,9 @@ class StaticNets:
     other gate net is a free variable; a cell's inputs, clocks included,
     take every value.  Then X is static when
     :func:`~analyze.stages.logic.find_floating` finds no assignment that
-    joins X to no rail.  Results are cached per net.
+    joins X to no rail.  Results are cached per net, and the search is
+    run once per network shape (switches with names replaced by their
+    rank, rails, the net): the arrays of a block repeat few shapes.
 
     Cost: the components, O(devices · α), once; per net, the search of
     :func:`~analyze.stages.logic.find_floating` over the s devices of
@@ -78,6 +80,8 @@ class StaticNets:
         self.max_cases = max_cases
         self._inverted: dict[str, str] | None = None
         self._cache: dict[str, Floating | None | SearchLimit] = {}
+        self._networks: dict[int, tuple] = {}
+        self._searched: dict[tuple, tuple] = {}
 
     def __call__(self, net: str) -> bool:
         """True when ``net`` is a rail or is driven for every assignment."""
@@ -101,14 +105,43 @@ class StaticNets:
             if comp is None:
                 self._cache[net] = Floating({}, 1)  # no channel: joined to nothing
             else:
-                switches = self._switches(comp.devices, set(comp.nets))
-                rails = {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
-                try:
-                    result = find_floating(switches, net, rails, self.max_cases)
-                except SearchLimit as e:
-                    result = e
-                self._cache[net] = result
+                self._cache[net] = self._search(comp, net)
         return self._cache[net]
+
+    def _network(self, comp) -> tuple:
+        """The switches of a component, its rails and its names sorted (made
+        once per component: a dynamic node and its footer node share one)."""
+        got = self._networks.get(id(comp))
+        if got is None:
+            switches = self._switches(comp.devices, set(comp.nets))
+            rails = {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
+            names = sorted({n for s in switches for n in (s.a, s.b, s.var) if n is not None})
+            rank = {n: i for i, n in enumerate(names)}
+            shape = (tuple((rank[s.a], rank[s.b], -1 if s.var is None else rank[s.var], s.closed_when)
+                           for s in switches), tuple(sorted(rank[n] for n in rails)))
+            got = self._networks[id(comp)] = (comp, switches, rails, names, rank, shape)
+        return got
+
+    def _search(self, comp, net: str) -> Floating | None | SearchLimit:
+        """:func:`find_floating` once per network shape: the switches with
+        every name replaced by its rank among the network's names (so the
+        search, which goes in name order, is the same), the rails and the
+        net.  A later net of the same shape takes the witness renamed."""
+        _, switches, rails, names, rank, shape = self._network(comp)
+        key = (shape, rank.get(net, -1))
+        hit = self._searched.get(key)
+        if hit is not None:
+            result, first_names = hit
+            if not isinstance(result, Floating):
+                return result
+            back = {n: names[i] for i, n in enumerate(first_names)}
+            return Floating({back[v]: x for v, x in result.assignment.items()}, result.cases)
+        try:
+            result = find_floating(switches, net, rails, self.max_cases)
+        except SearchLimit as e:
+            result = e
+        self._searched[key] = (result, names)
+        return result
 
     def _switches(self, devices: list[int], inside: set[str]) -> list[Switch]:
         out = []

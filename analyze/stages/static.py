@@ -81,6 +81,7 @@ class StaticNets:
         self._inverted: dict[str, str] | None = None
         self._cache: dict[str, Floating | None | SearchLimit] = {}
         self._networks: dict[int, tuple] = {}
+        self._anchor: dict[int, str] = {}
         self._searched: dict[tuple, tuple] = {}
 
     def __call__(self, net: str) -> bool:
@@ -101,33 +102,42 @@ class StaticNets:
     # -- internals -------------------------------------------------------
     def _decide(self, net: str) -> Floating | None | SearchLimit:
         if net not in self._cache:
-            comp = self.topo.component_of(None, net)
+            comp = self.topo.component_id(None, net)
             if comp is None:
                 self._cache[net] = Floating({}, 1)  # no channel: joined to nothing
             else:
                 self._cache[net] = self._search(comp, net)
         return self._cache[net]
 
-    def _network(self, comp) -> tuple:
-        """The switches of a component, its rails and its names sorted (made
-        once per component: a dynamic node and its footer node share one)."""
-        got = self._networks.get(id(comp))
+    def _network(self, comp: int) -> tuple:
+        """The names of a component's switches, sorted, their ranks and
+        the network's shape (switches with names replaced by ranks, the
+        rails): made once per component (a dynamic node and its footer
+        node share one)."""
+        got = self._networks.get(comp)
         if got is None:
-            switches = self._switches(comp.devices, set(comp.nets))
-            rails = {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
+            switches, rails = self._component_switches(comp)
             names = sorted({n for s in switches for n in (s.a, s.b, s.var) if n is not None})
             rank = {n: i for i, n in enumerate(names)}
             shape = (tuple((rank[s.a], rank[s.b], -1 if s.var is None else rank[s.var], s.closed_when)
                            for s in switches), tuple(sorted(rank[n] for n in rails)))
-            got = self._networks[id(comp)] = (comp, switches, rails, names, rank, shape)
+            got = self._networks[comp] = (names, rank, shape)
         return got
 
-    def _search(self, comp, net: str) -> Floating | None | SearchLimit:
+    def _component_switches(self, comp: int):
+        """The switches and rails of component ``comp`` (by number)."""
+        net = self._anchor[comp]
+        record = self.topo.component_of(None, net)
+        switches = self._switches(record.devices, set(record.nets))
+        return switches, {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
+
+    def _search(self, comp: int, net: str) -> Floating | None | SearchLimit:
         """:func:`find_floating` once per network shape: the switches with
         every name replaced by its rank among the network's names (so the
         search, which goes in name order, is the same), the rails and the
         net.  A later net of the same shape takes the witness renamed."""
-        _, switches, rails, names, rank, shape = self._network(comp)
+        self._anchor[comp] = net
+        names, rank, shape = self._network(comp)
         key = (shape, rank.get(net, -1))
         hit = self._searched.get(key)
         if hit is not None:
@@ -136,6 +146,7 @@ class StaticNets:
                 return result
             back = {n: names[i] for i, n in enumerate(first_names)}
             return Floating({back[v]: x for v, x in result.assignment.items()}, result.cases)
+        switches, rails = self._component_switches(comp)
         try:
             result = find_floating(switches, net, rails, self.max_cases)
         except SearchLimit as e:

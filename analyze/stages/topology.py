@@ -262,14 +262,24 @@ class Topology:
             self._arrays = (ids, names, ends, kinds, rail)
         return self._arrays
 
-    def component_of(self, dtype: str | None, net: str) -> Component | None:
-        """The ``dtype`` channel-connected component containing ``net``
-        (``dtype`` None: joined through nmos and pmos channels alike).
-        The same object for every net of one component."""
+    def _comps(self, dtype: str | None) -> "_Components":
         comps = self._components.get(dtype)
         if comps is None:
             comps = self._components[dtype] = _Components(self, ("nmos", "pmos") if dtype is None else (dtype,))
-        return comps.of(net)
+        return comps
+
+    def component_of(self, dtype: str | None, net: str) -> Component | None:
+        """The ``dtype`` channel-connected component containing ``net``
+        (``dtype`` None: joined through nmos and pmos channels alike).
+        A new record on each call (see :meth:`component_id`)."""
+        comps = self._comps(dtype)
+        c = comps.label_of(net)
+        return None if c is None else comps.make(c)
+
+    def component_id(self, dtype: str | None, net: str) -> int | None:
+        """A number for the component :meth:`component_of` gives, the same
+        for every net of it (None: no component)."""
+        return self._comps(dtype).label_of(net)
 
     def reach(self, start: str, dtype: str, stops: tuple[set[str], ...], skip: set[int]):
         """Breadth-first search through ``dtype`` channels from ``start``.
@@ -324,7 +334,8 @@ class _Components:
     component's devices are its member devices (a channel terminal off
     the rails) in index order, its nets in order of first appearance
     (drain before source, device by device).  O(devices) numpy work plus
-    O(size) per record made.
+    O(size) per record made; records are not kept (a block would hold
+    hundreds of thousands).
     """
 
     def __init__(self, topo: Topology, types: tuple[str, ...]):
@@ -355,21 +366,15 @@ class _Components:
         order = np.lexsort((first[net_ids], label[net_ids]))
         self.net_sorted, self.net_cuts = net_ids[order], _cuts(label[net_ids][order], n)
         self.ids, self.names, self.label = ids, names, label
-        self.made: dict[int, Component] = {}
 
-    def of(self, net: str) -> Component | None:
+    def label_of(self, net: str) -> int | None:
         k = self.ids.get(net)
         if k is None:
             return None
         c = int(self.label[k])
-        if c < 0:
-            return None
-        comp = self.made.get(c)
-        if comp is None:
-            comp = self.made[c] = self._make(c)
-        return comp
+        return None if c < 0 else c
 
-    def _make(self, c: int) -> Component:
+    def make(self, c: int) -> Component:
         devs, rails, names = self.devices, self.rails, self.names
         lo, hi = self.net_cuts[c:c + 2].tolist()
         nets = [names[k] for k in self.net_sorted[lo:hi].tolist()]

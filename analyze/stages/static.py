@@ -182,7 +182,7 @@ class StaticNets:
         """Inverter output -> input, for outputs driven by nothing else."""
         if self._inverted is None:
             topo, out = self.topo, {}
-            for y, devs in _channel_devices(topo).items():
+            for y, devs in _channel_devices(topo):
                 gates = {topo.devices[i].gate for i in devs}
                 if len(gates) != 1:
                     continue
@@ -194,12 +194,13 @@ class StaticNets:
         return self._inverted
 
 
-def _channel_devices(topo: Topology) -> dict[str, list[int]]:
-    """Non-rail net -> devices (either type) with a channel terminal on it."""
-    out: dict[str, list[int]] = {}
-    for i, d in enumerate(topo.devices):
-        if d.type in ("nmos", "pmos"):
-            for n in {d.drain, d.source}:
-                if not topo.is_rail(n):
-                    out.setdefault(n, []).append(i)
-    return out
+def _channel_devices(topo: Topology):
+    """``(net, devices)`` for every non-rail net with a channel terminal of
+    an nmos or pmos on it (from the topology's own indices)."""
+    nmos, pmos = topo._channels.get("nmos", {}), topo._channels.get("pmos", {})
+    for y, devs in nmos.items():
+        if not topo.is_rail(y):
+            yield y, devs + pmos.get(y, [])
+    for y, devs in pmos.items():
+        if y not in nmos and not topo.is_rail(y):
+            yield y, devs

@@ -152,7 +152,7 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     for g, texts in enumerate(g_texts):
         if texts:
             net = nets[names[g]]
-            net.labels = tuple(sorted(set(net.labels) | texts))
+            net.labels = tuple(sorted(set(net.labels).union(texts)))
             net.labelled = True
     del g_texts
     unit_name = distinct[per_unit_name]
@@ -230,8 +230,8 @@ _NO_TEXTS = frozenset()
 
 
 def _group_texts(placements, base, group, n_groups) -> list:
-    """The label texts on each group of joined units: a set per labelled
-    group, an empty frozenset (shared) for every other."""
+    """The label texts on each group of joined units, distinct: a 1-tuple
+    or a set per labelled group, an empty frozenset (shared) for every other."""
     texts: list = [_NO_TEXTS] * n_groups
     for (u, off), b in zip(placements, base):
         pairs = [(k, t) for k, tx in enumerate(u.texts) for t in tx]
@@ -244,7 +244,9 @@ def _group_texts(placements, base, group, n_groups) -> list:
         for g, t in zip(groups, words):
             got = texts[g]
             if got is _NO_TEXTS:
-                texts[g] = {t}
+                texts[g] = (t,)  # most groups carry one text: a 1-tuple, not a set
+            elif type(got) is tuple:
+                texts[g] = {*got, t}
             else:
                 got.add(t)
     return texts

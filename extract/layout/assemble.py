@@ -307,12 +307,30 @@ def _floats(values, digits: int | None = None) -> list:
     when ``digits`` is given; one float object per distinct value (bit
     pattern), so that a block's repeated numbers are stored once and
     Python's rounding runs once per value."""
-    v = np.ascontiguousarray(values, dtype=float).ravel()
-    bits, inverse = np.unique(v.view(np.int64), return_inverse=True)
-    once = bits.view(np.float64).tolist()
-    if digits is not None:
-        once = [round(x, digits) for x in once]
-    return list(map(once.__getitem__, inverse.ravel().tolist()))
+    return _Floats()(values, digits)
+
+
+class _Floats:
+    """:func:`_floats` over several calls, sharing the float objects of
+    equal values (per number of digits) between them."""
+
+    def __init__(self):
+        self.known: dict[tuple, float] = {}
+
+    def __call__(self, values, digits: int | None = None) -> list:
+        v = np.ascontiguousarray(values, dtype=float).ravel()
+        bits, inverse = np.unique(v.view(np.int64), return_inverse=True)
+        known = self.known
+        once = []
+        for b, x in zip(bits.tolist(), bits.view(np.float64).tolist()):
+            got = known.get((b, digits))
+            if got is None:
+                got = known[b, digits] = x if digits is None else round(x, digits)
+            once.append(got)
+        return list(map(once.__getitem__, inverse.ravel().tolist()))
+
+
+_CHUNK = 1 << 16
 
 
 def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> list[Device]:
@@ -334,25 +352,30 @@ def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> li
         cols["y"].append((d["y"][None, :] + off[:, 1:2]).ravel())
     if not cols["w"]:
         return []
-    c = {k: np.concatenate(v) for k, v in cols.items()}
+    c = {k: v[0] if len(v) == 1 else np.concatenate(v) for k, v in cols.items()}
+    del cols
     order = np.lexsort((np.round(c["y"], 6), np.round(c["x"], 6)))
-    n = len(order)
-    t = c["type"][order]
-    ga, ua, ub = c["gate"][order], c["a"][order], c["b"][order]
-    ia, ib = per_unit_name[ua], per_unit_name[ub]
+    floats = _Floats()
     role = np.array([net.role for net in nets], dtype=object)
-    rail = np.where(t == "nmos", "ground", "power")
-    ra, rb = role[ia] == rail, role[ib] == rail
-    a_first = (ra < rb) | ((ra == rb) & (ia <= ib))  # names sort as their indices
-    pick = lambda x, y: np.where(a_first, c[x][order], c[y][order])  # noqa: E731
-    drain = unit_name[np.where(a_first, ua, ub)].tolist()
-    source = unit_name[np.where(a_first, ub, ua)].tolist()
     models = {k: (mos.models[0] if mos.models else None) for k, mos in tech.mos.items()}
-    types = t.tolist()
-    return list(map(
-        Device, [f"M{k}" for k in range(1, n + 1)], types, drain, unit_name[ga].tolist(), source,
-        _floats(c["w"][order], 9), _floats(c["l"][order], 9),
-        _floats(pick("area_a", "area_b"), 9), _floats(pick("area_b", "area_a"), 9),
-        _floats(pick("perim_a", "perim_b"), 9), _floats(pick("perim_b", "perim_a"), 9),
-        list(zip(_floats(c["x"][order], 6), _floats(c["y"][order], 6))), [models[k] for k in types],
-    ))
+    devices: list[Device] = []
+    for lo in range(0, len(order), _CHUNK):  # in slices: the temporaries stay small
+        part = order[lo:lo + _CHUNK]
+        t = c["type"][part]
+        ga, ua, ub = c["gate"][part], c["a"][part], c["b"][part]
+        ia, ib = per_unit_name[ua], per_unit_name[ub]
+        rail = np.where(t == "nmos", "ground", "power")
+        ra, rb = role[ia] == rail, role[ib] == rail
+        a_first = (ra < rb) | ((ra == rb) & (ia <= ib))  # names sort as their indices
+        pick = lambda x, y: np.where(a_first, c[x][part], c[y][part])  # noqa: E731
+        types = t.tolist()
+        devices += map(
+            Device, [f"M{k}" for k in range(lo + 1, lo + len(part) + 1)], types,
+            unit_name[np.where(a_first, ua, ub)].tolist(), unit_name[ga].tolist(),
+            unit_name[np.where(a_first, ub, ua)].tolist(),
+            floats(c["w"][part], 9), floats(c["l"][part], 9),
+            floats(pick("area_a", "area_b"), 9), floats(pick("area_b", "area_a"), 9),
+            floats(pick("perim_a", "perim_b"), 9), floats(pick("perim_b", "perim_a"), 9),
+            list(zip(floats(c["x"][part], 6), floats(c["y"][part], 6))), [models[k] for k in types],
+        )
+    return devices

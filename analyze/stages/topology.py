@@ -143,17 +143,24 @@ class Topology:
         self._components: dict[str | None, _Components] = {}
         self._arrays = None
         self._rail_end: list[tuple[str, str] | None] = []
+        gates, channels, attached, rail_end = self.gates, self._channels, self._attached, self._rail_end
+        rails, roles = self._rails, self._roles
         for i, d in enumerate(self.devices):
-            self.gates[d.gate].append(i)
-            chan = self._channels.setdefault(d.type, defaultdict(list))
-            chan[d.drain].append(i)
-            if d.source != d.drain:
-                chan[d.source].append(i)
-            hit = self._find_rail_end(d)
-            self._rail_end.append(hit)
-            if hit is not None:
-                role, other = hit
-                self._attached[(d.type, role)][other].append(i)
+            gates[d.gate].append(i)
+            chan = channels.get(d.type)
+            if chan is None:
+                chan = channels[d.type] = defaultdict(list)
+            drain, source = d.drain, d.source
+            chan[drain].append(i)
+            if source != drain:
+                chan[source].append(i)
+            rd, rs = drain in rails, source in rails
+            if rd != rs:
+                hit = (roles[drain], source) if rd else (roles[source], drain)
+                attached[(d.type, hit[0])][hit[1]].append(i)
+                rail_end.append(hit)
+            else:
+                rail_end.append(None)
 
     # -- roles -----------------------------------------------------------
     @staticmethod
@@ -162,15 +169,18 @@ class Topology:
         by_upper = {}
         for role, names in (("clock", tech.nets.clock), ("ground", tech.nets.ground), ("power", tech.nets.power)):
             by_upper.update({n.upper(): role for n in names})
-        names = set(circuit.nets)
-        for d in circuit.devices:
-            names.update((d.drain, d.gate, d.source))
+        nets = circuit.nets
         out = {}
-        for n in names:
-            net = circuit.nets.get(n)
-            r = net.role if net is not None and net.role != "signal" else by_upper.get(n.upper(), "signal")
+        for n, net in nets.items():
+            r = net.role if net.role != "signal" else by_upper.get(n.upper(), "signal")
             if r != "signal":
                 out[n] = r
+        for d in circuit.devices:  # terminals the circuit lists no net for
+            for n in (d.drain, d.gate, d.source):
+                if n not in nets:
+                    r = by_upper.get(n.upper(), "signal")
+                    if r != "signal":
+                        out[n] = r
         return out
 
     def role(self, net: str) -> str:

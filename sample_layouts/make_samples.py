@@ -7,7 +7,8 @@ timestamp.
 
 Importable too: :data:`CELLS` maps each cell name to the function that
 draws it, :func:`build_library` returns the whole library and
-:func:`nand3_array` an array of ``DYN_NAND3`` for benchmarks.
+:func:`nand3_array` an array of ``DYN_NAND3`` and :func:`mixed_block` an
+array of every cell, for benchmarks.
 
 Every cell is our own invented demo in the invented 1.8 V dsk18 process.
 """
@@ -34,6 +35,7 @@ __all__ = [
     "build_library",
     "write_library",
     "nand3_array",
+    "mixed_block",
     "main",
 ]
 
@@ -169,6 +171,56 @@ def nand3_array(nx: int, ny: int, flatten: bool = False) -> gdstk.Library:
         lib.add(top)
     else:
         lib.add(top, cell)
+    return lib
+
+
+def mixed_block(nx: int, ny: int, names=None) -> gdstk.Library:
+    """A block of several demo cells, each arrayed ``nx`` × ``ny``.
+
+    Parameters
+    ----------
+    nx, ny : int
+        Columns and rows of each cell's array.  One copy of every cell of
+        :data:`CELLS` is 111 transistors, so 30 × 30 is about 100k and
+        95 × 95 about 1M.
+    names : iterable of str, optional
+        The cells (default all of :data:`CELLS`, in that order).
+
+    Returns
+    -------
+    gdstk.Library
+        Top cell ``MIXED_BLOCK``: one arrayed reference per cell, the
+        arrays side by side in x, 2 µm apart.  Within an array copies abut
+        in x (their rails join) and rows are 0.6 µm apart, as in
+        :func:`nand3_array`; the rails of different rows and arrays are
+        one net each by their labels.
+
+    Raises
+    ------
+    ValueError
+        When nx or ny is below 1.
+
+    Examples
+    --------
+    >>> lib = mixed_block(2, 3, ["DYN_NAND3", "PDYN_NOR2"])
+    >>> top = [c for c in lib.top_level()][0]
+    >>> top.name, [(r.cell.name, r.repetition.columns, r.repetition.rows) for r in top.references]
+    ('MIXED_BLOCK', [('DYN_NAND3', 2, 3), ('PDYN_NOR2', 2, 3)])
+    """
+    if nx < 1 or ny < 1:
+        raise ValueError("nx and ny must be at least 1")
+    lib = gdstk.Library("MIXED_BLOCK_LIB", unit=UNIT, precision=PRECISION)
+    top = gdstk.Cell("MIXED_BLOCK")
+    x = 0.0
+    for name in names if names is not None else CELLS:
+        cell = CELLS[name]()
+        (bx0, by0), (bx1, by1) = cell.bounding_box()
+        w, h = round(bx1 - bx0, 3), round(by1 - by0 + 0.6, 3)
+        top.add(gdstk.Reference(cell, origin=(round(x - bx0, 3), round(-by0, 3)), columns=nx, rows=ny,
+                                spacing=(w, h)))
+        lib.add(cell)
+        x += nx * w + 2.0
+    lib.add(top)
     return lib
 
 

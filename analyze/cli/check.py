@@ -62,8 +62,6 @@ def check_text(circuit, tech, recognition, results) -> str:
 
 
 def check_cell(args) -> int:
-    from analyze.cli.inputs import open_cells
-
     tech, constraints = load_run_inputs(args)
     if getattr(args, "corner", None) and not getattr(args, "simulate", False):
         from extract.errors import InputError
@@ -73,13 +71,24 @@ def check_cell(args) -> int:
         from extract.errors import InputError
 
         raise InputError(args.tech, "--simulate needs a [models] table (the foundry model library)", "models")
+    from analyze.cli.collector import big_run
+
+    with big_run():
+        return _check(args, tech, constraints)
+
+
+def _check(args, tech, constraints) -> int:
+    from analyze.cli.collector import settled
+    from analyze.cli.inputs import open_cells
     from analyze.cli.progress import Steps
 
     with Steps() as steps:
         with steps.step(f"reading, flattening and extracting {args.layout}"):
             circuit = open_cells(args.layout, tech).circuit(args.cell)
+        settled()
         recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints,
                                                progress=lambda n: steps.counted("analysing stages", n))
+        settled()
     if getattr(args, "simulate", False):
         from analyze.simulate.run import simulate_result
 

@@ -8,6 +8,8 @@ the start of evaluation),
 :mod:`~analyze.search.flags` (nodes that need a precharge device),
 :mod:`~analyze.search.foundry` (the worst case with the foundry models),
 :mod:`~analyze.search.foundry_flags` (flags proven with the foundry models),
+:mod:`~analyze.search.contexts` (a stage's context key: the analysis once
+per distinct context, results renamed),
 :mod:`~analyze.search.analysis` (the public entry points).
 
 May import: :mod:`extract`, :mod:`analyze.stages`, :mod:`analyze.physics`.

@@ -53,6 +53,7 @@ from dataclasses import dataclass, field, replace
 from typing import Iterator
 
 from analyze.search.constraints import Constraints, check_constraints_apply, stage_blocks
+from analyze.search.contexts import StageContexts
 from analyze.search.flags import Flag, find_flags
 from analyze.search.patterns import bind_blocks, count_counted, iter_counted
 from analyze.physics.sharing import SharingModel, WorstCase, build_model
@@ -379,12 +380,16 @@ def iter_counted_patterns(
             return
 
 
-def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None):
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None, reuse=True):
     """Recognise the stages of ``circuit`` and analyse each one.
 
     ``progress``, when given, is called with the number of stages once they
     are recognised and returns the function to call after each stage is
     analysed (see :meth:`analyze.cli.progress.Steps.counted`).
+
+    ``reuse`` (default True): stages with the same context are analysed
+    once and the result renamed (:class:`analyze.search.contexts.StageContexts`);
+    False analyses every stage on its own.  The results are the same.
 
     Returns
     -------
@@ -396,8 +401,9 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, prog
         check_constraints_apply(constraints, recognition.stages, constraints_path)
     tick = progress(len(recognition.stages)) if progress else None
     results = []
+    contexts = StageContexts(circuit, tech, constraints, analyze_stage) if reuse else None
     for st in recognition.stages:
-        results.append(analyze_stage(circuit, st, tech, constraints))
+        results.append(contexts.analyse(st) if reuse else analyze_stage(circuit, st, tech, constraints))
         if tick:
             tick()
     return recognition, results

@@ -324,10 +324,13 @@ def _orphan_footers(ctx: _SideContext) -> list[Finding]:
     seen: set[int] = set()
     for i in sorted(ctx.footers, key=lambda i: devs[i].name):
         net = topo.rail_end(i)[1]
-        comp = topo.component_of(side.eval_type, net)
-        if comp is None or id(comp) in seen or len(comp.devices) < 2:
+        key = topo.component_id(side.eval_type, net)
+        if key is None or key in seen:
             continue
-        seen.add(id(comp))
+        comp = topo.component_of(side.eval_type, net)
+        if len(comp.devices) < 2:
+            continue
+        seen.add(key)
         if any(topo.channels(side.pull_type, n) for n in comp.nets):
             continue
         out.append(

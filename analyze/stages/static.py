@@ -50,7 +50,9 @@ class StaticNets:
     other gate net is a free variable; a cell's inputs, clocks included,
     take every value.  Then X is static when
     :func:`~analyze.stages.logic.find_floating` finds no assignment that
-    joins X to no rail.  Results are cached per net.
+    joins X to no rail.  Results are cached per net, and the search is
+    run once per network shape (switches with names replaced by their
+    rank, rails, the net): the arrays of a block repeat few shapes.
 
     Cost: the components, O(devices · α), once; per net, the search of
     :func:`~analyze.stages.logic.find_floating` over the s devices of
@@ -78,6 +80,9 @@ class StaticNets:
         self.max_cases = max_cases
         self._inverted: dict[str, str] | None = None
         self._cache: dict[str, Floating | None | SearchLimit] = {}
+        self._networks: dict[int, tuple] = {}
+        self._anchor: dict[int, str] = {}
+        self._searched: dict[tuple, tuple] = {}
 
     def __call__(self, net: str) -> bool:
         """True when ``net`` is a rail or is driven for every assignment."""
@@ -97,18 +102,57 @@ class StaticNets:
     # -- internals -------------------------------------------------------
     def _decide(self, net: str) -> Floating | None | SearchLimit:
         if net not in self._cache:
-            comp = self.topo.component_of(None, net)
+            comp = self.topo.component_id(None, net)
             if comp is None:
                 self._cache[net] = Floating({}, 1)  # no channel: joined to nothing
             else:
-                switches = self._switches(comp.devices, set(comp.nets))
-                rails = {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
-                try:
-                    result = find_floating(switches, net, rails, self.max_cases)
-                except SearchLimit as e:
-                    result = e
-                self._cache[net] = result
+                self._cache[net] = self._search(comp, net)
         return self._cache[net]
+
+    def _network(self, comp: int) -> tuple:
+        """The names of a component's switches, sorted, their ranks and
+        the network's shape (switches with names replaced by ranks, the
+        rails): made once per component (a dynamic node and its footer
+        node share one)."""
+        got = self._networks.get(comp)
+        if got is None:
+            switches, rails = self._component_switches(comp)
+            names = sorted({n for s in switches for n in (s.a, s.b, s.var) if n is not None})
+            rank = {n: i for i, n in enumerate(names)}
+            shape = (tuple((rank[s.a], rank[s.b], -1 if s.var is None else rank[s.var], s.closed_when)
+                           for s in switches), tuple(sorted(rank[n] for n in rails)))
+            got = self._networks[comp] = (names, rank, shape)
+        return got
+
+    def _component_switches(self, comp: int):
+        """The switches and rails of component ``comp`` (by number)."""
+        net = self._anchor[comp]
+        record = self.topo.component_of(None, net)
+        switches = self._switches(record.devices, set(record.nets))
+        return switches, {n for s in switches for n in (s.a, s.b) if self.topo.is_rail(n)}
+
+    def _search(self, comp: int, net: str) -> Floating | None | SearchLimit:
+        """:func:`find_floating` once per network shape: the switches with
+        every name replaced by its rank among the network's names (so the
+        search, which goes in name order, is the same), the rails and the
+        net.  A later net of the same shape takes the witness renamed."""
+        self._anchor[comp] = net
+        names, rank, shape = self._network(comp)
+        key = (shape, rank.get(net, -1))
+        hit = self._searched.get(key)
+        if hit is not None:
+            result, first_names = hit
+            if not isinstance(result, Floating):
+                return result
+            back = {n: names[i] for i, n in enumerate(first_names)}
+            return Floating({back[v]: x for v, x in result.assignment.items()}, result.cases)
+        switches, rails = self._component_switches(comp)
+        try:
+            result = find_floating(switches, net, rails, self.max_cases)
+        except SearchLimit as e:
+            result = e
+        self._searched[key] = (result, names)
+        return result
 
     def _switches(self, devices: list[int], inside: set[str]) -> list[Switch]:
         out = []
@@ -138,7 +182,7 @@ class StaticNets:
         """Inverter output -> input, for outputs driven by nothing else."""
         if self._inverted is None:
             topo, out = self.topo, {}
-            for y, devs in _channel_devices(topo).items():
+            for y, devs in _channel_devices(topo):
                 gates = {topo.devices[i].gate for i in devs}
                 if len(gates) != 1:
                     continue
@@ -150,12 +194,13 @@ class StaticNets:
         return self._inverted
 
 
-def _channel_devices(topo: Topology) -> dict[str, list[int]]:
-    """Non-rail net -> devices (either type) with a channel terminal on it."""
-    out: dict[str, list[int]] = {}
-    for i, d in enumerate(topo.devices):
-        if d.type in ("nmos", "pmos"):
-            for n in {d.drain, d.source}:
-                if not topo.is_rail(n):
-                    out.setdefault(n, []).append(i)
-    return out
+def _channel_devices(topo: Topology):
+    """``(net, devices)`` for every non-rail net with a channel terminal of
+    an nmos or pmos on it (from the topology's own indices)."""
+    nmos, pmos = topo._channels.get("nmos", {}), topo._channels.get("pmos", {})
+    for y, devs in nmos.items():
+        if not topo.is_rail(y):
+            yield y, devs + pmos.get(y, [])
+    for y, devs in pmos.items():
+        if y not in nmos and not topo.is_rail(y):
+            yield y, devs

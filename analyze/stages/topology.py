@@ -16,6 +16,10 @@ from __future__ import annotations
 from collections import Counter, defaultdict, deque
 from dataclasses import dataclass
 
+import numpy as np
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+
 from extract.circuit import Circuit, Device
 from extract.tech import Tech
 
@@ -136,19 +140,27 @@ class Topology:
         self._attached: dict[tuple[str, str], dict[str, list[int]]] = defaultdict(
             lambda: defaultdict(list)
         )
-        self._components: dict[str, tuple[dict[str, int], list[Component]]] = {}
+        self._components: dict[str | None, _Components] = {}
+        self._arrays = None
         self._rail_end: list[tuple[str, str] | None] = []
+        gates, channels, attached, rail_end = self.gates, self._channels, self._attached, self._rail_end
+        rails, roles = self._rails, self._roles
         for i, d in enumerate(self.devices):
-            self.gates[d.gate].append(i)
-            chan = self._channels.setdefault(d.type, defaultdict(list))
-            chan[d.drain].append(i)
-            if d.source != d.drain:
-                chan[d.source].append(i)
-            hit = self._find_rail_end(d)
-            self._rail_end.append(hit)
-            if hit is not None:
-                role, other = hit
-                self._attached[(d.type, role)][other].append(i)
+            gates[d.gate].append(i)
+            chan = channels.get(d.type)
+            if chan is None:
+                chan = channels[d.type] = defaultdict(list)
+            drain, source = d.drain, d.source
+            chan[drain].append(i)
+            if source != drain:
+                chan[source].append(i)
+            rd, rs = drain in rails, source in rails
+            if rd != rs:
+                hit = (roles[drain], source) if rd else (roles[source], drain)
+                attached[(d.type, hit[0])][hit[1]].append(i)
+                rail_end.append(hit)
+            else:
+                rail_end.append(None)
 
     # -- roles -----------------------------------------------------------
     @staticmethod
@@ -157,15 +169,18 @@ class Topology:
         by_upper = {}
         for role, names in (("clock", tech.nets.clock), ("ground", tech.nets.ground), ("power", tech.nets.power)):
             by_upper.update({n.upper(): role for n in names})
-        names = set(circuit.nets)
-        for d in circuit.devices:
-            names.update((d.drain, d.gate, d.source))
+        nets = circuit.nets
         out = {}
-        for n in names:
-            net = circuit.nets.get(n)
-            r = net.role if net is not None and net.role != "signal" else by_upper.get(n.upper(), "signal")
+        for n, net in nets.items():
+            r = net.role if net.role != "signal" else by_upper.get(n.upper(), "signal")
             if r != "signal":
                 out[n] = r
+        for d in circuit.devices:  # terminals the circuit lists no net for
+            for n in (d.drain, d.gate, d.source):
+                if n not in nets:
+                    r = by_upper.get(n.upper(), "signal")
+                    if r != "signal":
+                        out[n] = r
         return out
 
     def role(self, net: str) -> str:
@@ -243,60 +258,38 @@ class Topology:
         ]
 
     # -- channel-connected components -------------------------------------
+    def _net_arrays(self):
+        """Net numbers (channel terminals), made once: ``(ids, names,
+        ends (devices × 2), type codes, rail flag per net)``."""
+        if self._arrays is None:
+            ids: dict[str, int] = {}
+            ends = np.fromiter((ids.setdefault(n, len(ids)) for d in self.devices for n in (d.drain, d.source)),
+                               dtype=np.intp, count=2 * len(self.devices)).reshape(-1, 2)
+            kinds = np.fromiter((_KINDS.get(d.type, -1) for d in self.devices), dtype=np.int8,
+                                count=len(self.devices))
+            names = list(ids)
+            rail = np.fromiter((n in self._rails for n in names), dtype=bool, count=len(names))
+            self._arrays = (ids, names, ends, kinds, rail)
+        return self._arrays
+
+    def _comps(self, dtype: str | None) -> "_Components":
+        comps = self._components.get(dtype)
+        if comps is None:
+            comps = self._components[dtype] = _Components(self, ("nmos", "pmos") if dtype is None else (dtype,))
+        return comps
+
     def component_of(self, dtype: str | None, net: str) -> Component | None:
         """The ``dtype`` channel-connected component containing ``net``
-        (``dtype`` None: joined through nmos and pmos channels alike)."""
-        index, comps = self._components_of(dtype)
-        k = index.get(net)
-        return None if k is None else comps[k]
+        (``dtype`` None: joined through nmos and pmos channels alike).
+        A new record on each call (see :meth:`component_id`)."""
+        comps = self._comps(dtype)
+        c = comps.label_of(net)
+        return None if c is None else comps.make(c)
 
-    def _components_of(self, dtype: str):
-        if dtype not in self._components:
-            self._components[dtype] = self._build_components(dtype)
-        return self._components[dtype]
-
-    def _build_components(self, dtype: str | None):
-        parent: dict[str, str] = {}
-
-        def find(a: str) -> str:
-            root = a
-            while parent[root] != root:
-                root = parent[root]
-            while parent[a] != root:
-                parent[a], a = root, parent[a]
-            return root
-
-        types = ("nmos", "pmos") if dtype is None else (dtype,)
-        members = [i for i, d in enumerate(self.devices) if d.type in types]
-        for i in members:
-            d = self.devices[i]
-            ends = [n for n in (d.drain, d.source) if not self.is_rail(n)]
-            for n in ends:
-                parent.setdefault(n, n)
-            if len(ends) == 2:
-                ra, rb = find(ends[0]), find(ends[1])
-                if ra != rb:
-                    parent[ra] = rb
-        index: dict[str, int] = {}
-        comps: list[Component] = []
-        for n in parent:
-            r = find(n)
-            if r not in index:
-                index[r] = len(comps)
-                comps.append(Component([], [], Counter(), defaultdict(list)))
-            index[n] = index[r]
-            comps[index[r]].nets.append(n)
-        for i in members:
-            d = self.devices[i]
-            ends = [n for n in (d.drain, d.source) if not self.is_rail(n)]
-            if not ends:
-                continue
-            c = comps[index[ends[0]]]
-            c.devices.append(i)
-            c.gate_count[d.gate] += 1
-            if len(ends) == 1:
-                c.rail_by_gate[d.gate].append(i)
-        return index, comps
+    def component_id(self, dtype: str | None, net: str) -> int | None:
+        """A number for the component :meth:`component_of` gives, the same
+        for every net of it (None: no component)."""
+        return self._comps(dtype).label_of(net)
 
     def reach(self, start: str, dtype: str, stops: tuple[set[str], ...], skip: set[int]):
         """Breadth-first search through ``dtype`` channels from ``start``.
@@ -340,3 +333,74 @@ class Topology:
                     dist[other] = dist[net] + 1
                     queue.append(other)
         return dist, found
+
+
+class _Components:
+    """The channel-connected components of some device types, as arrays;
+    a :class:`Component` record is made the first time it is asked for.
+
+    Nets are numbered; a device with both channel terminals off the rails
+    is an edge, and scipy's connected components label the nets.  Each
+    component's devices are its member devices (a channel terminal off
+    the rails) in index order, its nets in order of first appearance
+    (drain before source, device by device).  O(devices) numpy work plus
+    O(size) per record made; records are not kept (a block would hold
+    hundreds of thousands).
+    """
+
+    def __init__(self, topo: Topology, types: tuple[str, ...]):
+        # holds the device list and rail set, not the Topology (no reference cycle)
+        self.devices, self.rails = topo.devices, topo._rails
+        ids, names, ends, kinds, rail = topo._net_arrays()
+        mask = np.zeros(len(kinds), bool)
+        for t in types:
+            mask |= kinds == _KINDS.get(t, -1)
+        members = np.flatnonzero(mask)
+        a, b = ends[members, 0], ends[members, 1]
+        ra, rb = rail[a], rail[b]
+        both = ~ra & ~rb
+        n = len(names)
+        graph = coo_matrix((np.ones(int(both.sum()), dtype=np.int8), (a[both], b[both])), shape=(n, n))
+        _, label = connected_components(graph, directed=False)
+        flat = np.stack([a, b], axis=1).ravel()
+        off = ~rail[flat]
+        first = np.full(n, len(flat))
+        np.minimum.at(first, flat[off], np.flatnonzero(off))
+        present = first < len(flat)
+        label = np.where(present, label, -1)
+        keep = ~(ra & rb)
+        dev_label = np.where(ra, label[b], label[a])[keep]
+        order = np.argsort(dev_label, kind="stable")
+        self.dev_sorted, self.dev_cuts = members[keep][order], _cuts(dev_label[order], n)
+        net_ids = np.flatnonzero(present)
+        order = np.lexsort((first[net_ids], label[net_ids]))
+        self.net_sorted, self.net_cuts = net_ids[order], _cuts(label[net_ids][order], n)
+        self.ids, self.names, self.label = ids, names, label
+
+    def label_of(self, net: str) -> int | None:
+        k = self.ids.get(net)
+        if k is None:
+            return None
+        c = int(self.label[k])
+        return None if c < 0 else c
+
+    def make(self, c: int) -> Component:
+        devs, rails, names = self.devices, self.rails, self.names
+        lo, hi = self.net_cuts[c:c + 2].tolist()
+        nets = [names[k] for k in self.net_sorted[lo:hi].tolist()]
+        lo, hi = self.dev_cuts[c:c + 2].tolist()
+        members = self.dev_sorted[lo:hi].tolist()
+        mine = [devs[i] for i in members]
+        rail_by_gate: dict[str, list[int]] = defaultdict(list)
+        for i, d in zip(members, mine):
+            if (d.drain in rails) != (d.source in rails):
+                rail_by_gate[d.gate].append(i)
+        return Component(nets, members, Counter([d.gate for d in mine]), rail_by_gate)
+
+
+_KINDS = {"nmos": 0, "pmos": 1}
+
+
+def _cuts(sorted_labels: np.ndarray, n: int) -> np.ndarray:
+    """Start of each label 0..n in a sorted label array (label ``n`` past the end)."""
+    return np.searchsorted(sorted_labels, np.arange(n + 1), side="left")

@@ -131,13 +131,7 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     g_points = c_pts[pick] if n_groups else np.empty((0, 2))
     g_diff, g_area = c_diff[pick], c_area[pick]
 
-    g_texts: list[set] = [set() for _ in range(n_groups)]
-    for (u, off), b in zip(placements, base):
-        labelled = [k for k, t in enumerate(u.texts) if t]
-        for i in range(len(off)):
-            start = int(b) + i * u.n
-            for k in labelled:
-                g_texts[group[start + k]].update(u.texts[k])
+    g_texts = _group_texts(placements, base, group, n_groups)
     names, name_findings = names_from_texts(g_texts, g_points, tech.role_of)
 
     # one net per name: parts summed, location from the best group
@@ -148,34 +142,34 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     sums = np.zeros((len(distinct), 6))
     np.add.at(sums, per_unit_name, cap)
     nets: dict[str, Net] = {}
-    for k, name in enumerate(distinct.tolist()):
-        x, y = g_points[loc[k]]
-        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]),
-                         location_um=(round(float(x), 6), round(float(y), 6)))
+    role_of = tech.role_of
+    net_list = []
+    parts = _floats(sums)
+    points = _floats(g_points[loc], 6)
+    for name, six, xy in zip(distinct.tolist(), zip(*[iter(parts)] * 6), zip(*[iter(points)] * 2)):
+        net = nets[name] = Net(name, role_of(name), CapParts(*six), location_um=xy)
+        net_list.append(net)
     for g, texts in enumerate(g_texts):
         if texts:
             net = nets[names[g]]
-            net.labels = tuple(sorted(set(net.labels) | texts))
+            net.labels = tuple(sorted(set(net.labels).union(texts)))
             net.labelled = True
+    del g_texts
     unit_name = distinct[per_unit_name]
     single = len(placements) == 1 and len(placements[0][1]) == 1
     shape_lists = {name: [] for name in nets} if single else PlacedShapes(placements, base, unit_name, list(nets))
+    _add_junctions(placements, base, per_unit_name, net_list)
     findings: list[Finding] = []
     for (u, off), b in zip(placements, base):
-        with_junctions = [k for k, jn in enumerate(u.junctions) if jn]
         for i, (dx, dy) in enumerate(off.tolist()):
-            start = int(b) + i * u.n
-            for k in with_junctions:
-                net = nets[unit_name[start + k]]
-                for t, geo in u.junctions[k].items():
-                    net.junctions[t] = net.junctions.get(t, JunctionGeometry()) + geo
             for f in u.findings:
                 loc_f = None if f.location_um is None else (f.location_um[0] + dx, f.location_um[1] + dy)
                 findings.append(Finding(f.message, loc_f))
             if shapes and single:
+                start = int(b) + i * u.n
                 _place_shapes(u, dx, dy, unit_name[start : start + u.n], shape_lists)
     findings.extend(name_findings)
-    devices = _devices(placements, base, unit_name, nets, tech)
+    devices = _devices(placements, base, unit_name, per_unit_name, net_list, tech)
     return Circuit(cell=cell, nets=dict(sorted(nets.items())), devices=devices, findings=findings, source=path,
                    shapes=shape_lists if shapes else {})
 
@@ -232,7 +226,116 @@ def _place_shapes(u: CellUnits, dx: float, dy: float, unit_names, shape_lists) -
             shape_lists[unit_names[k]].extend(zip([l for l, _ in items], moved))
 
 
-def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
+_NO_TEXTS = frozenset()
+
+
+def _group_texts(placements, base, group, n_groups) -> list:
+    """The label texts on each group of joined units, distinct: a 1-tuple
+    or a set per labelled group, an empty frozenset (shared) for every other."""
+    texts: list = [_NO_TEXTS] * n_groups
+    for (u, off), b in zip(placements, base):
+        pairs = [(k, t) for k, tx in enumerate(u.texts) for t in tx]
+        if not pairs:
+            continue
+        ks = np.array([k for k, _ in pairs], dtype=np.intp)
+        starts = int(b) + np.arange(len(off), dtype=np.intp) * u.n
+        groups = group[(starts[:, None] + ks[None, :]).ravel()].tolist()
+        words = [t for _, t in pairs] * len(off)
+        for g, t in zip(groups, words):
+            got = texts[g]
+            if got is _NO_TEXTS:
+                texts[g] = (t,)  # most groups carry one text: a 1-tuple, not a set
+            elif type(got) is tuple:
+                texts[g] = {*got, t}
+            else:
+                got.add(t)
+    return texts
+
+
+def _add_junctions(placements, base, per_unit_name, nets: list) -> None:
+    """Sum every placed unit's junction geometry into its net.
+
+    Per net and device type the parts are added in the order placement,
+    instance, unit (``numpy.add.at`` is unbuffered and goes in index
+    order), from 0, as a running ``JunctionGeometry`` sum would; the
+    types of a net's dict come in the order first met."""
+    idx, kinds, vals = [], [], []
+    for (u, off), b in zip(placements, base):
+        rows = [(k, t, (g.area_um2, g.field_perimeter_um, g.gate_perimeter_um))
+                for k, jn in enumerate(u.junctions) if jn for t, g in jn.items()]
+        if not rows:
+            continue
+        ks = np.array([k for k, _, _ in rows], dtype=np.intp)
+        starts = int(b) + np.arange(len(off), dtype=np.intp) * u.n
+        idx.append(per_unit_name[(starts[:, None] + ks[None, :]).ravel()])
+        kinds.append(np.tile(np.array([t for _, t, _ in rows], dtype=object), len(off)))
+        vals.append(np.tile(np.array([v for _, _, v in rows], dtype=float), (len(off), 1)))
+    if not idx:
+        return
+    idx, kinds, vals = np.concatenate(idx), np.concatenate(kinds), np.concatenate(vals)
+    order = np.arange(len(idx))
+    per_type = []
+    for t in dict.fromkeys(kinds.tolist()):
+        sel = kinds == t
+        acc = np.zeros((len(nets), 3))
+        np.add.at(acc, idx[sel], vals[sel])
+        first = np.full(len(nets), len(idx))
+        np.minimum.at(first, idx[sel], order[sel])
+        per_type.append((t, acc, first))
+    firsts = np.stack([f for _, _, f in per_type])
+    has = firsts < len(idx)
+    geos = []
+    for j, (_, acc, _) in enumerate(per_type):
+        rows = np.flatnonzero(has[j])
+        three = _floats(acc[rows])
+        geo = [None] * len(nets)
+        for k, a, f, g in zip(rows.tolist(), three[0::3], three[1::3], three[2::3]):
+            geo[k] = JunctionGeometry(a, f, g)
+        geos.append(geo)
+    if len(per_type) == 1:
+        t, geo = per_type[0][0], geos[0]
+        for k in np.flatnonzero(has[0]).tolist():
+            nets[k].junctions = {t: geo[k]}
+        return
+    for k in np.flatnonzero(has.any(axis=0)).tolist():
+        seen = sorted((int(firsts[j, k]), j) for j in range(len(per_type)) if has[j, k])
+        nets[k].junctions = {per_type[j][0]: geos[j][k] for _, j in seen}
+
+
+def _floats(values, digits: int | None = None) -> list:
+    """The values (row by row) as Python floats, ``round(v, digits)``
+    when ``digits`` is given; one float object per distinct value (bit
+    pattern), so that a block's repeated numbers are stored once and
+    Python's rounding runs once per value."""
+    return _Floats()(values, digits)
+
+
+class _Floats:
+    """:func:`_floats` over several calls, sharing the float objects of
+    equal values (per number of digits) between them."""
+
+    def __init__(self):
+        self.known: dict[tuple, float] = {}
+
+    def __call__(self, values, digits: int | None = None) -> list:
+        v = np.ascontiguousarray(values, dtype=float).ravel()
+        bits, inverse = np.unique(v.view(np.int64), return_inverse=True)
+        known = self.known
+        once = []
+        for b, x in zip(bits.tolist(), bits.view(np.float64).tolist()):
+            got = known.get((b, digits))
+            if got is None:
+                got = known[b, digits] = x if digits is None else round(x, digits)
+            once.append(got)
+        return list(map(once.__getitem__, inverse.ravel().tolist()))
+
+
+_CHUNK = 1 << 16
+
+
+def _devices(placements, base, unit_name, per_unit_name, nets: list, tech) -> list[Device]:
+    """The placed devices, numbered by position, drain first (not the rail,
+    else the earlier name); numbers rounded as Python's ``round`` does."""
     cols: dict[str, list] = {k: [] for k in ("type", "gate", "a", "b", "w", "l", "x", "y",
                                               "area_a", "perim_a", "area_b", "perim_b")}
     for (u, off), b in zip(placements, base):
@@ -249,28 +352,30 @@ def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
         cols["y"].append((d["y"][None, :] + off[:, 1:2]).ravel())
     if not cols["w"]:
         return []
-    c = {k: np.concatenate(v) for k, v in cols.items()}
+    c = {k: v[0] if len(v) == 1 else np.concatenate(v) for k, v in cols.items()}
+    del cols
     order = np.lexsort((np.round(c["y"], 6), np.round(c["x"], 6)))
-    gate, a, b = unit_name[c["gate"]], unit_name[c["a"]], unit_name[c["b"]]
-    models = {t: (mos.models[0] if mos.models else None) for t, mos in tech.mos.items()}
-    role = {name: net.role for name, net in nets.items()}
-    devices = []
-    for n, i in enumerate(order.tolist()):
-        t = c["type"][i]
-        rail = "ground" if t == "nmos" else "power"
-        ea = (role[a[i]] == rail, a[i])
-        eb = (role[b[i]] == rail, b[i])
-        if ea <= eb:  # drain first: not the rail, else the earlier name
-            dn, ad, pd, sn, as_, ps = a[i], c["area_a"][i], c["perim_a"][i], b[i], c["area_b"][i], c["perim_b"][i]
-        else:
-            dn, ad, pd, sn, as_, ps = b[i], c["area_b"][i], c["perim_b"][i], a[i], c["area_a"][i], c["perim_a"][i]
-        devices.append(Device(
-            name=f"M{n + 1}", type=t, drain=dn, gate=gate[i], source=sn,
-            w_um=round(float(c["w"][i]), 9), l_um=round(float(c["l"][i]), 9),
-            ad_um2=round(float(ad), 9), as_um2=round(float(as_), 9),
-            pd_um=round(float(pd), 9), ps_um=round(float(ps), 9),
-            location_um=(round(float(c["x"][i]), 6), round(float(c["y"][i]), 6)),
-            model=models[t],
-        ))
+    floats = _Floats()
+    role = np.array([net.role for net in nets], dtype=object)
+    models = {k: (mos.models[0] if mos.models else None) for k, mos in tech.mos.items()}
+    devices: list[Device] = []
+    for lo in range(0, len(order), _CHUNK):  # in slices: the temporaries stay small
+        part = order[lo:lo + _CHUNK]
+        t = c["type"][part]
+        ga, ua, ub = c["gate"][part], c["a"][part], c["b"][part]
+        ia, ib = per_unit_name[ua], per_unit_name[ub]
+        rail = np.where(t == "nmos", "ground", "power")
+        ra, rb = role[ia] == rail, role[ib] == rail
+        a_first = (ra < rb) | ((ra == rb) & (ia <= ib))  # names sort as their indices
+        pick = lambda x, y: np.where(a_first, c[x][part], c[y][part])  # noqa: E731
+        types = t.tolist()
+        devices += map(
+            Device, [f"M{k}" for k in range(lo + 1, lo + len(part) + 1)], types,
+            unit_name[np.where(a_first, ua, ub)].tolist(), unit_name[ga].tolist(),
+            unit_name[np.where(a_first, ub, ua)].tolist(),
+            floats(c["w"][part], 9), floats(c["l"][part], 9),
+            floats(pick("area_a", "area_b"), 9), floats(pick("area_b", "area_a"), 9),
+            floats(pick("perim_a", "perim_b"), 9), floats(pick("perim_b", "perim_a"), 9),
+            list(zip(floats(c["x"][part], 6), floats(c["y"][part], 6))), [models[k] for k in types],
+        )
     return devices
-

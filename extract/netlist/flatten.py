@@ -83,7 +83,7 @@ of that work is done.
 from __future__ import annotations
 
 from collections import Counter, defaultdict
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 from extract.circuit import CapParts, Circuit, Coupling, Device, JunctionGeometry, Net
 from extract.errors import Finding, InputError
@@ -160,7 +160,7 @@ def _to_um(value: float, factor: float) -> float:
 
 def _scaled(parts, factor: float):
     """A CapParts or JunctionGeometry with every field times ``factor``."""
-    return type(parts)(*(v * factor for v in vars(parts).values()))
+    return type(parts)(*(getattr(parts, f.name) * factor for f in fields(parts)))
 
 
 class _Builder:

@@ -100,3 +100,38 @@ def test_rails_and_nets_without_channels():
     static = static_nets(inverter("MI", "A", "Y"))
     assert static("VDD") and static("VSS") and static("Y")
     assert not static("A")
+
+
+def test_search_once_per_network_shape_gives_each_nets_own_answer(tmp_path):
+    # Reference: find_floating run on each net's own switches (the
+    # definition of the test), against the answers shared between nets of
+    # one network shape, on an array of every sample cell.
+    import os
+
+    from analyze.stages.logic import Floating, SearchLimit, conducts, find_floating
+    from extract.layout.pipeline import extract_layout
+    from extract.techfile import load_tech
+    from sample_layouts.make_samples import mixed_block
+
+    root = os.path.dirname(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
+    tech = load_tech(os.path.join(root, "sample_layouts", "dsk18.toml"))
+    path = str(tmp_path / "m.gds")
+    mixed_block(2, 2).write_gds(path)
+    topo = Topology(extract_layout(path, tech, "MIXED_BLOCK"), tech)
+    shared = StaticNets(topo)
+    nets = sorted({n for d in topo.devices for n in (d.drain, d.source) if not topo.is_rail(n)})
+    for net in nets:
+        comp = topo.component_of(None, net)
+        switches = StaticNets(topo)._switches(comp.devices, set(comp.nets))
+        rails = {n for s in switches for n in (s.a, s.b) if topo.is_rail(n)}
+        try:
+            own = find_floating(switches, net, rails)
+        except SearchLimit as e:
+            own = e  # undecided counts as not static
+        assert shared(net) == (own is None), net
+        if isinstance(own, Floating):
+            got = shared.floating(net)
+            assert isinstance(got, Floating) and got.assignment == own.assignment, net
+            # the witness really leaves the net undriven
+            assert not conducts(switches, net, rails, got.assignment), net
+    assert len(shared._searched) < len(nets)

@@ -10,6 +10,7 @@ kp µA/V².
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 
 __all__ = [
@@ -104,6 +105,15 @@ class NetRoles:
     power: tuple[str, ...] = ("VDD",)
     ground: tuple[str, ...] = ("VSS", "GND")
     clock: tuple[str, ...] = ()
+
+
+@functools.lru_cache(maxsize=64)
+def _roles(power: tuple, ground: tuple, clock: tuple) -> dict[str, str]:
+    """Upper-case name -> role; the first of power, ground, clock wins."""
+    roles: dict[str, str] = {}
+    for role, names in (("clock", clock), ("ground", ground), ("power", power)):
+        roles.update((n.upper(), role) for n in names)
+    return roles
 
 
 @dataclass(frozen=True)
@@ -229,11 +239,5 @@ class Tech:
 
         Names are compared without regard to case, as SPICE does.
         """
-        upper = net_name.upper()
-        if upper in {n.upper() for n in self.nets.power}:
-            return "power"
-        if upper in {n.upper() for n in self.nets.ground}:
-            return "ground"
-        if upper in {n.upper() for n in self.nets.clock}:
-            return "clock"
-        return "signal"
+        nets = self.nets
+        return _roles(tuple(nets.power), tuple(nets.ground), tuple(nets.clock)).get(net_name.upper(), "signal")

@@ -148,10 +148,9 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     sums = np.zeros((len(distinct), 6))
     np.add.at(sums, per_unit_name, cap)
     nets: dict[str, Net] = {}
-    for k, name in enumerate(distinct.tolist()):
-        x, y = g_points[loc[k]]
-        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]),
-                         location_um=(round(float(x), 6), round(float(y), 6)))
+    at = g_points[loc] if len(distinct) else np.empty((0, 2))
+    for k, (name, x, y) in enumerate(zip(distinct.tolist(), at[:, 0].tolist(), at[:, 1].tolist())):
+        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]), location_um=(round(x, 6), round(y, 6)))
     for g, texts in enumerate(g_texts):
         if texts:
             net = nets[names[g]]
@@ -161,14 +160,10 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     single = len(placements) == 1 and len(placements[0][1]) == 1
     shape_lists = {name: [] for name in nets} if single else PlacedShapes(placements, base, unit_name, list(nets))
     findings: list[Finding] = []
+    _net_junctions(placements, base, per_unit_name, distinct, nets)
     for (u, off), b in zip(placements, base):
-        with_junctions = [k for k, jn in enumerate(u.junctions) if jn]
         for i, (dx, dy) in enumerate(off.tolist()):
             start = int(b) + i * u.n
-            for k in with_junctions:
-                net = nets[unit_name[start + k]]
-                for t, geo in u.junctions[k].items():
-                    net.junctions[t] = net.junctions.get(t, JunctionGeometry()) + geo
             for f in u.findings:
                 loc_f = None if f.location_um is None else (f.location_um[0] + dx, f.location_um[1] + dy)
                 findings.append(Finding(f.message, loc_f))
@@ -232,6 +227,38 @@ def _place_shapes(u: CellUnits, dx: float, dy: float, unit_names, shape_lists) -
             shape_lists[unit_names[k]].extend(zip([l for l, _ in items], moved))
 
 
+def _net_junctions(placements, base, per_unit_name, distinct, nets) -> None:
+    """Sum the junction geometry of every placed unit into its net.
+
+    The sums run in the order placement, instance, unit, type (``np.add.at``
+    is sequential), and each net's dict holds its types in order of their
+    first unit: what adding the records one by one gives.
+    """
+    types = sorted({t for u, _ in placements for jn in u.junctions for t in jn})
+    code_of = {t: i for i, t in enumerate(types)}
+    units, codes, values = [], [], []
+    for (u, off), b in zip(placements, base):
+        rows = [(k, code_of[t], geo.area_um2, geo.field_perimeter_um, geo.gate_perimeter_um)
+                for k, jn in enumerate(u.junctions) for t, geo in jn.items()]
+        if not rows:
+            continue
+        r = np.array(rows, dtype=float)
+        m = len(off)
+        units.append((int(b) + np.arange(m)[:, None] * u.n + r[:, 0].astype(np.intp)[None, :]).ravel())
+        codes.append(np.tile(r[:, 1].astype(np.intp), m))
+        values.append(np.tile(r[:, 2:], (m, 1)))
+    if not units:
+        return
+    net, code = per_unit_name[np.concatenate(units)], np.concatenate(codes)
+    sums = np.zeros((len(distinct), len(types), 3))
+    np.add.at(sums, (net, code), np.concatenate(values))
+    _, first = np.unique(net * len(types) + code, return_index=True)
+    first.sort()
+    net, code = net[first], code[first]
+    for k, c, vals in zip(net.tolist(), code.tolist(), sums[net, code].tolist()):
+        nets[distinct[k]].junctions[types[c]] = JunctionGeometry(*vals)
+
+
 def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
     cols: dict[str, list] = {k: [] for k in ("type", "gate", "a", "b", "w", "l", "x", "y",
                                               "area_a", "perim_a", "area_b", "perim_b")}
@@ -251,26 +278,23 @@ def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
         return []
     c = {k: np.concatenate(v) for k, v in cols.items()}
     order = np.lexsort((np.round(c["y"], 6), np.round(c["x"], 6)))
-    gate, a, b = unit_name[c["gate"]], unit_name[c["a"]], unit_name[c["b"]]
+    gate, a, b = (unit_name[c[k][order]].tolist() for k in ("gate", "a", "b"))
+    # Python's round on Python floats, as the records always had
+    w, l, x, y, area_a, perim_a, area_b, perim_b = (
+        [round(v, r) for v in c[k][order].tolist()]
+        for k, r in (("w", 9), ("l", 9), ("x", 6), ("y", 6), ("area_a", 9), ("perim_a", 9), ("area_b", 9), ("perim_b", 9))
+    )
     models = {t: (mos.models[0] if mos.models else None) for t, mos in tech.mos.items()}
     role = {name: net.role for name, net in nets.items()}
     devices = []
-    for n, i in enumerate(order.tolist()):
-        t = c["type"][i]
+    for n, t in enumerate(c["type"][order].tolist()):
         rail = "ground" if t == "nmos" else "power"
-        ea = (role[a[i]] == rail, a[i])
-        eb = (role[b[i]] == rail, b[i])
-        if ea <= eb:  # drain first: not the rail, else the earlier name
-            dn, ad, pd, sn, as_, ps = a[i], c["area_a"][i], c["perim_a"][i], b[i], c["area_b"][i], c["perim_b"][i]
+        if (role[a[n]] == rail, a[n]) <= (role[b[n]] == rail, b[n]):  # drain first: not the rail, else the earlier name
+            dn, ad, pd, sn, as_, ps = a[n], area_a[n], perim_a[n], b[n], area_b[n], perim_b[n]
         else:
-            dn, ad, pd, sn, as_, ps = b[i], c["area_b"][i], c["perim_b"][i], a[i], c["area_a"][i], c["perim_a"][i]
+            dn, ad, pd, sn, as_, ps = b[n], area_b[n], perim_b[n], a[n], area_a[n], perim_a[n]
         devices.append(Device(
-            name=f"M{n + 1}", type=t, drain=dn, gate=gate[i], source=sn,
-            w_um=round(float(c["w"][i]), 9), l_um=round(float(c["l"][i]), 9),
-            ad_um2=round(float(ad), 9), as_um2=round(float(as_), 9),
-            pd_um=round(float(pd), 9), ps_um=round(float(ps), 9),
-            location_um=(round(float(c["x"][i]), 6), round(float(c["y"][i]), 6)),
-            model=models[t],
+            name=f"M{n + 1}", type=t, drain=dn, gate=gate[n], source=sn, w_um=w[n], l_um=l[n],
+            ad_um2=ad, as_um2=as_, pd_um=pd, ps_um=ps, location_um=(x[n], y[n]), model=models[t],
         ))
     return devices
-

@@ -249,7 +249,9 @@ def names_from_texts(texts, net_points, role_of):
                         (float(x), float(y)),
                     )
                 )
-    order = sorted(range(k_nets), key=lambda k: (round(net_points[k][1], 6), round(net_points[k][0], 6), k))
+    # by y, then x (numpy's rounding to 1e-6), then index: one stable lexsort
+    pts = np.asarray(net_points).reshape(-1, 2)
+    order = np.lexsort((np.round(pts[:, 0], 6), np.round(pts[:, 1], 6))).tolist() if k_nets else []
     names: list[str] = [""] * k_nets
     used: set[str] = set()
     by_text: dict[str, list[int]] = {}

@@ -31,7 +31,7 @@ from scipy.sparse.csgraph import connected_components
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.errors import Finding
 from extract.layout.connectivity import names_from_texts
-from extract.layout.units import CellUnits, best_of
+from extract.layout.units import CellUnits, best_of, round_each
 from extract.tech import Tech
 
 __all__ = ["assemble", "PlacedShapes"]
@@ -149,8 +149,8 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     np.add.at(sums, per_unit_name, cap)
     nets: dict[str, Net] = {}
     at = g_points[loc] if len(distinct) else np.empty((0, 2))
-    for k, (name, x, y) in enumerate(zip(distinct.tolist(), at[:, 0].tolist(), at[:, 1].tolist())):
-        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]), location_um=(round(x, 6), round(y, 6)))
+    for k, (name, x, y) in enumerate(zip(distinct.tolist(), round_each(at[:, 0], 6), round_each(at[:, 1], 6))):
+        nets[name] = Net(name=name, role=tech.role_of(name), cap=CapParts(*sums[k]), location_um=(x, y))
     for g, texts in enumerate(g_texts):
         if texts:
             net = nets[names[g]]
@@ -281,7 +281,7 @@ def _devices(placements, base, unit_name, nets, tech) -> list[Device]:
     gate, a, b = (unit_name[c[k][order]].tolist() for k in ("gate", "a", "b"))
     # Python's round on Python floats, as the records always had
     w, l, x, y, area_a, perim_a, area_b, perim_b = (
-        [round(v, r) for v in c[k][order].tolist()]
+        round_each(c[k][order], r)
         for k, r in (("w", 9), ("l", 9), ("x", 6), ("y", 6), ("area_a", 9), ("perim_a", 9), ("area_b", 9), ("perim_b", 9))
     )
     models = {t: (mos.models[0] if mos.models else None) for t, mos in tech.mos.items()}

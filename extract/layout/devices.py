@@ -103,9 +103,10 @@ def device_type(points: np.ndarray, pimplant, nimplant, nwell) -> np.ndarray:
     >>> device_type(pts, none, np.array([box(5, 0, 6, 1)]), np.array([box(0, 0, 1, 1)])).tolist()
     ['pmos', 'nmos', 'nmos']
     """
-    in_p = inside_any(pimplant, points)
-    in_n = inside_any(nimplant, points)
-    in_w = inside_any(nwell, points)
+    geoms = shapely.points(points) if len(points) else points
+    in_p = inside_any(pimplant, geoms)
+    in_n = inside_any(nimplant, geoms)
+    in_w = inside_any(nwell, geoms)
     is_p = in_p | (~in_n & in_w)
     return np.where(is_p, "pmos", "nmos")
 

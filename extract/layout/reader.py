@@ -336,10 +336,15 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
             continue
         # snapped to the grid all at once, then split into views per polygon
         snapped.append(np.round(np.concatenate(arrays).astype(float) / grid_um) * grid_um)
-        flat.polygons[key] = np.split(snapped[-1], np.cumsum([len(a) for a in arrays])[:-1])
+        ends = np.cumsum([len(a) for a in arrays]).tolist()
+        flat.polygons[key] = [snapped[-1][i:j] for i, j in zip([0] + ends[:-1], ends)]
+    # label origins snapped at once (np.rint rounds half to even, as round() does)
+    origins = np.array([lab.origin for lab in labels], dtype=float).reshape(-1, 2)
+    snapped_origins = np.rint(origins / grid_um) * grid_um + 0.0  # + 0.0: no negative zero, as round() gives
+    if not np.isfinite(snapped_origins).all():  # round() refuses these: keep its error
+        snapped_origins = [[round(v / grid_um) * grid_um for v in lab.origin] for lab in labels]
     try:
-        for lab in labels:
-            x, y = (round(v / grid_um) * grid_um for v in lab.origin)
+        for lab, (x, y) in zip(labels, np.asarray(snapped_origins).tolist()):
             flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
     except (TypeError, UnicodeError):
         raise InputError(path, "a text label is not valid text (bytes outside ASCII/UTF-8)", f"cell {cell}") from None

@@ -31,7 +31,7 @@ from extract.layout.geometry import merge_parts, polygons_from_arrays, represent
 from extract.layout.reader import FlatLayout
 from extract.tech import Tech
 
-__all__ = ["CellUnits", "cell_units", "layer_shapes", "best_of"]
+__all__ = ["CellUnits", "cell_units", "layer_shapes", "best_of", "round_each"]
 
 
 @dataclass
@@ -98,6 +98,32 @@ def _union(arrays):
     if len(arrays) == 1:
         return arrays[0]
     return merge_parts(np.concatenate(arrays))
+
+
+def round_each(values, ndigits: int) -> list:
+    """``[round(float(v), ndigits) for v in values]``, computed once per distinct value.
+
+    Python's ``round`` rounds the exact binary value to a decimal place
+    (numpy's multiplies first, and can differ in the last bit); an array of
+    placed cells repeats few distinct values, so each is rounded once and
+    the results spread with numpy.  Values are told apart by their bits, so
+    -0.0 stays -0.0.
+
+    Examples
+    --------
+    >>> round_each(np.array([0.1 + 0.2, 0.1 + 0.2, -0.0, 2.675]), 2)
+    [0.3, 0.3, -0.0, 2.67]
+
+    Notes
+    -----
+    One ``np.unique`` (O(n log n)) and one ``round`` per distinct value.
+    """
+    values = np.ascontiguousarray(values, dtype=float)
+    if len(values) == 0:
+        return []
+    bits, inverse = np.unique(values.view(np.int64), return_inverse=True)
+    rounded = np.array([round(v, ndigits) for v in bits.view(float).tolist()])
+    return rounded[inverse.ravel()].tolist()
 
 
 def best_of(group: np.ndarray, is_diff: np.ndarray, area: np.ndarray, points: np.ndarray, n: int) -> np.ndarray:
@@ -257,7 +283,7 @@ def _junctions(tech, pieces, piece_unit, cap) -> list:
     names, code = np.unique(np.concatenate([pc.type for pc in pieces]).astype(str), return_inverse=True)
     code = code.ravel()
     # Python's round (correctly rounded decimal), as the records always had
-    geo = np.array([[round(v, 9) for v in np.concatenate([getattr(pc, f) for pc in pieces]).tolist()]
+    geo = np.array([round_each(np.concatenate([getattr(pc, f) for pc in pieces]), 9)
                     for f in ("area", "field_edge", "gate_edge")]).T
     sums = np.zeros((n, len(names), 3))
     np.add.at(sums, (piece_unit, code), geo)
@@ -302,9 +328,8 @@ def _devices(tech, chans, pieces, piece_offset, conductors, net_of, cap) -> dict
         gates.append(net_of[gate_of])
     cat = lambda f: np.concatenate([f(ch, off) for ch, off in kept])  # noqa: E731
     points = cat(lambda ch, off: ch.points)
-    rx = [round(v, 6) for v in points[:, 0].tolist()]
-    ry = [round(v, 6) for v in points[:, 1].tolist()]
-    order = np.lexsort((np.array(ry), np.array(rx)))  # stable: ties keep the channel order
+    # stable: ties keep the channel order
+    order = np.lexsort((np.array(round_each(points[:, 1], 6)), np.array(round_each(points[:, 0], 6))))
     t = cat(lambda ch, off: ch.type).astype(str).astype(object)[order]
     a = cat(lambda ch, off: off + ch.piece_a)[order]
     b = cat(lambda ch, off: off + ch.piece_b)[order]

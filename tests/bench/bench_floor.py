@@ -149,6 +149,7 @@ for name in of("cut"):
     cuts = shapes[name]
     for joined in layers[name].joins:
         idx = np.flatnonzero(layer_of == joined)
+        shapely.prepare(geoms[idx])
         g, c = shapely.STRtree(cuts).query(geoms[idx], predicate="intersects")
         keep = ~shapely.touches(geoms[idx][g], cuts[c])  # positive-area overlap
         rows.append(idx[g[keep]])

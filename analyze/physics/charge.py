@@ -154,19 +154,23 @@ class NodeCharge:
         empty = np.zeros(0)
         return cls(float(c_lin), empty, empty, empty, np.zeros(0, dtype=bool), float(vdd))
 
-    def __post_init__(self):
+    def _scalar_parts(self) -> tuple:
         # Plain-float copy of the parts for the scalar path (root finding
-        # calls charge() with one voltage at a time).
-        parts = tuple(
-            (float(c), float(p), float(m), bool(h))
-            for c, p, m, h in zip(self.c0, self.pb, self.m, self.body_high)
-            if c != 0.0
-        )
-        object.__setattr__(self, "_parts", parts)
+        # calls charge() with one voltage at a time), made on first use: a
+        # sum of nodes that is never evaluated does not pay for it.
+        parts = self.__dict__.get("_parts")
+        if parts is None:
+            parts = tuple(
+                (c, p, m, bool(h))
+                for c, p, m, h in zip(self.c0.tolist(), self.pb.tolist(), self.m.tolist(), self.body_high.tolist())
+                if c != 0.0
+            )
+            object.__setattr__(self, "_parts", parts)
+        return parts
 
     def _charge_scalar(self, v: float) -> float:
         q = self.c_lin * v
-        for c0, pb, m, high in self._parts:
+        for c0, pb, m, high in self._scalar_parts():
             vr = self.vdd - v if high else v
             x = 1.0 + vr / pb
             e = 1.0 - m

@@ -18,6 +18,7 @@ device i).
 
 from __future__ import annotations
 
+import copy as _copy
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -125,13 +126,7 @@ class SharingModel:
     _cache: dict = field(default_factory=dict, repr=False)
 
     def __post_init__(self):
-        self._adj = [[] for _ in self.nodes]
-        self.node_devices = [0] * len(self.nodes)
-        for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)):
-            for s, t in ((a, b), (b, a)):
-                if s != RAIL and s != t:
-                    self._adj[s].append((1 << d, t))
-                    self.node_devices[s] |= 1 << d
+        self._index_devices()
         self.all_nodes = (1 << len(self.nodes)) - 1
         # Every node carries the same junction parts (analyze.physics.charge.JUNCTION_KINDS),
         # so sums of nodes are sums of rows; share the part arrays for fast addition.
@@ -144,6 +139,22 @@ class SharingModel:
         )
         self._c_lin = np.array([q.c_lin for q in self.charges])
         self._c0 = np.array([q.c0 for q in self.charges])
+
+    def _index_devices(self) -> None:
+        """Per node: its devices, those to the rail and the node across each
+        other one (device bit -> node); per device bit its two ends."""
+        self.node_devices = [0] * len(self.nodes)
+        self._to_rail = [0] * len(self.nodes)
+        self._across: list[dict[int, int]] = [{} for _ in self.nodes]
+        self._ends = {1 << d: (a, b) for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)) if a != b}
+        for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)):
+            for s, t in ((a, b), (b, a)):
+                if s != RAIL and s != t:
+                    self.node_devices[s] |= 1 << d
+                    if t == RAIL:
+                        self._to_rail[s] |= 1 << d
+                    else:
+                        self._across[s][1 << d] = t
 
     # -- switch network ------------------------------------------------------
     def with_precharged(self, names) -> "SharingModel":
@@ -166,9 +177,8 @@ class SharingModel:
             mask |= 1 << self.nodes.index(name)
         if mask == self.precharged:
             return self
-        copy = SharingModel(**{k: getattr(self, k) for k in self.__dataclass_fields__})
+        copy = _copy.copy(self)  # the switch network and charges as they are, prepared once
         copy.precharged = mask
-        copy._cache = self._cache
         return copy
 
     def conducting(self, values) -> int:
@@ -183,19 +193,67 @@ class SharingModel:
         """Nodes joined to the dynamic node through devices ``on``.
 
         Returns ``(node bitmask, tied)``; ``tied`` is True when the rail is
-        reached.  The rail is never passed through.  Depth-first search,
-        O(devices).
+        reached.  The rail is never passed through.  Depth-first search
+        that, at each node, walks only the set bits of ``on`` among the
+        node's devices: O(conducting devices at the nodes reached).
         """
-        seen, stack, tied = 1, [0], False
-        adj = self._adj
-        while stack:
-            for bit, j in adj[stack.pop()]:
-                if on & bit:
-                    if j == RAIL:
+        return self._grow(1, False, [0], on)
+
+    def component_from(self, seen: int, tied: bool, on: int, new: int) -> tuple[int, bool]:
+        """:meth:`component` of ``on``, given ``(seen, tied)``, the component
+        of ``on & ~new`` (fewer devices conducting).
+
+        A component only grows as devices turn on, so the search starts
+        from ``seen``: a new device with an end in ``seen`` adds its other
+        end, and the nodes so added are searched as in :meth:`component`.
+        O(new devices + conducting devices at the nodes added), where a
+        fresh search is O(conducting devices at every node reached).
+
+        Examples
+        --------
+        >>> m = SharingModel.__new__(SharingModel)
+        >>> m.nodes, m.dev_a, m.dev_b = ("X", "a", "b"), (0, 1, 2), (1, 2, RAIL)
+        >>> m._index_devices()
+        >>> m.component(0b001)
+        (3, False)
+        >>> m.component_from(3, False, 0b011, 0b010), m.component(0b011)
+        ((7, False), (7, False))
+        >>> m.component_from(7, False, 0b111, 0b100)
+        (7, True)
+        """
+        stack = []
+        ends = self._ends
+        while new:
+            bit = new & -new
+            new ^= bit
+            a, b = ends.get(bit, (RAIL, RAIL))  # a device from a node to itself joins nothing
+            for s, t in ((a, b), (b, a)):
+                if s != RAIL and (seen >> s) & 1:
+                    if t == RAIL:
                         tied = True
-                    elif not (seen >> j) & 1:
-                        seen |= 1 << j
-                        stack.append(j)
+                    elif not (seen >> t) & 1:
+                        seen |= 1 << t
+                        stack.append(t)
+        return self._grow(seen, tied, stack, on)
+
+    def _grow(self, seen: int, tied: bool, stack: list, on: int) -> tuple[int, bool]:
+        """Depth-first search through devices ``on`` from the nodes of
+        ``stack`` (already in ``seen``); at each node only the set bits of
+        ``on`` among its devices are walked."""
+        across, to_rail, at = self._across, self._to_rail, self.node_devices
+        while stack:
+            s = stack.pop()
+            live = on & at[s]
+            if live & to_rail[s]:
+                tied = True
+                live &= ~to_rail[s]
+            while live:
+                bit = live & -live
+                live ^= bit
+                j = across[s][bit]
+                if not (seen >> j) & 1:
+                    seen |= 1 << j
+                    stack.append(j)
         return seen, tied
 
     def touching(self, node_mask: int) -> int:

@@ -108,13 +108,16 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         possible_rest = on
         for i in rest:
             possible_rest |= choices[i].devices
+        rest_reach, rest_tied = component(possible_rest)
         children = []
         for k, mask in enumerate(choices[pick].on):
+            # both grow from a component already known: this one's, and what
+            # the other undecided blocks could join
             on2 = on | mask
-            comp2, tied = component(on2)
+            comp2, tied = model.component_from(comp, False, on2, mask & ~on)
             if tied:
                 continue
-            reach, _ = component(possible_rest | mask)
+            reach, _ = model.component_from(rest_reach, rest_tied, possible_rest | mask, mask & ~possible_rest)
             children.append((round(model.bound(reach, comp2), _DIGITS), k, on2, comp2))
         children.sort(key=lambda t: (t[0], t[1]))
         c = choices[pick]

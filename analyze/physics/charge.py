@@ -154,28 +154,41 @@ class NodeCharge:
         empty = np.zeros(0)
         return cls(float(c_lin), empty, empty, empty, np.zeros(0, dtype=bool), float(vdd))
 
-    def _scalar_parts(self) -> tuple:
+    def __getattr__(self, name):
         # Plain-float copy of the parts for the scalar path (root finding
         # calls charge() with one voltage at a time), made on first use: a
         # sum of nodes that is never evaluated does not pay for it.
-        parts = self.__dict__.get("_parts")
-        if parts is None:
-            parts = tuple(
-                (c, p, m, bool(h))
-                for c, p, m, h in zip(self.c0.tolist(), self.pb.tolist(), self.m.tolist(), self.body_high.tolist())
-                if c != 0.0
-            )
-            object.__setattr__(self, "_parts", parts)
+        if name != "_parts":
+            raise AttributeError(name)
+        # per part: c0·pb, pb, 1 − m, whether that is 0 (the log form), body high
+        parts = tuple(
+            (c * p, p, 1.0 - m, abs(1.0 - m) < 1e-12, bool(h))
+            for c, p, m, h in zip(self.c0.tolist(), self.pb.tolist(), self.m.tolist(), self.body_high.tolist())
+            if c != 0.0
+        )
+        object.__setattr__(self, "_parts", parts)
         return parts
 
     def _charge_scalar(self, v: float) -> float:
         q = self.c_lin * v
-        for c0, pb, m, high in self._scalar_parts():
-            vr = self.vdd - v if high else v
-            x = 1.0 + vr / pb
-            e = 1.0 - m
-            dq = c0 * pb * (math.log(x) if abs(e) < 1e-12 else (x**e - 1.0) / e)
+        vdd = self.vdd
+        for c0pb, pb, e, log_form, high in self._parts:
+            x = 1.0 + ((vdd - v) if high else v) / pb
+            dq = c0pb * (math.log(x) if log_form else (x**e - 1.0) / e)
             q += -dq if high else dq
+        return q
+
+    def charge_at(self, v: float) -> float:
+        """:meth:`charge` at one voltage, remembered per node charge: for
+        the few fixed voltages (0, ``v_lim``, ``vdd``) that every solve of
+        :mod:`analyze.physics.redistribution` asks of the same sums."""
+        memo = self.__dict__.get("_memo")
+        if memo is None:
+            memo = {}
+            object.__setattr__(self, "_memo", memo)
+        q = memo.get(v)
+        if q is None:
+            q = memo[v] = self._charge_scalar(float(v))
         return q
 
     def _reverse_bias(self, v):

@@ -141,8 +141,9 @@ class SharingModel:
         self._c0 = np.array([q.c0 for q in self.charges])
 
     def _index_devices(self) -> None:
-        """Per node: its devices, those to the rail and the node across each
-        other one (device bit -> node); per device bit its two ends."""
+        """Per node: its devices, those to the rail, the node across each
+        other one (device bit -> node) and the nodes one device away; per
+        device bit its two ends."""
         self.node_devices = [0] * len(self.nodes)
         self._to_rail = [0] * len(self.nodes)
         self._across: list[dict[int, int]] = [{} for _ in self.nodes]
@@ -155,6 +156,10 @@ class SharingModel:
                         self._to_rail[s] |= 1 << d
                     else:
                         self._across[s][1 << d] = t
+        self._near = [0] * len(self.nodes)  # nodes one device away (any device)
+        for s, other in enumerate(self._across):
+            for t in other.values():
+                self._near[s] |= 1 << t
 
     # -- switch network ------------------------------------------------------
     def with_precharged(self, names) -> "SharingModel":
@@ -240,20 +245,24 @@ class SharingModel:
         """Depth-first search through devices ``on`` from the nodes of
         ``stack`` (already in ``seen``); at each node only the set bits of
         ``on`` among its devices are walked."""
-        across, to_rail, at = self._across, self._to_rail, self.node_devices
+        across, to_rail, at, near = self._across, self._to_rail, self.node_devices, self._near
         while stack:
             s = stack.pop()
             live = on & at[s]
             if live & to_rail[s]:
                 tied = True
                 live &= ~to_rail[s]
+            other = across[s]
             while live:
                 bit = live & -live
                 live ^= bit
-                j = across[s][bit]
+                j = other[bit]
                 if not (seen >> j) & 1:
                     seen |= 1 << j
-                    stack.append(j)
+                    if near[j] & ~seen:
+                        stack.append(j)
+                    elif on & to_rail[j]:  # every neighbour is in already: only the rail is news
+                        tied = True
         return seen, tied
 
     def touching(self, node_mask: int) -> int:
@@ -317,14 +326,24 @@ class SharingModel:
         return shared & ~self.precharged, shared & self.precharged
 
     def _sum(self, mask: int) -> NodeCharge:
+        """The nodes of ``mask`` as one :class:`NodeCharge`; cached (it does
+        not depend on which nodes are pre-conditioned, so the copies of
+        :meth:`with_precharged` share it)."""
+        key = ("sum", mask)
+        hit = self._cache.get(key)
+        if hit is not None:
+            return hit
         idx = [i for i in range(mask.bit_length()) if (mask >> i) & 1]
         first = self.charges[0]
         if not idx:
-            return NodeCharge(0.0, np.zeros_like(first.c0), first.pb, first.m, first.body_high, self.vdd)
-        return NodeCharge(
-            float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), first.pb, first.m,
-            first.body_high, self.vdd,
-        )
+            hit = NodeCharge(0.0, np.zeros_like(first.c0), first.pb, first.m, first.body_high, self.vdd)
+        else:
+            hit = NodeCharge(
+                float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), first.pb, first.m,
+                first.body_high, self.vdd,
+            )
+        self._cache[key] = hit
+        return hit
 
     def redistribute(self, discharged: int, precharged: int) -> Redistribution:
         """Topology-free normalised final state for these shared node sets

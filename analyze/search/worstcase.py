@@ -92,22 +92,41 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         for col, v in zip(c.columns, c.options[k]):
             vals[col] = v
 
-    def visit(on: int, comp: int, undecided: frozenset, bound: float) -> None:
+    devices = [c.devices for c in choices]
+    union = 0
+    for d in devices:
+        union |= d
+    disjoint = sum(bin(d).count("1") for d in devices) == bin(union).count("1")  # each gate in one block
+
+    def visit(on: int, comp: int, touch: int, undecided: int, undecided_dev: int, bound: float) -> None:
+        # undecided: bitmask of choice indices; undecided_dev: their devices;
+        # touch: the devices with a terminal in comp
         if pruned(bound):
             return
-        touch = model.touching(comp)
-        frontier = [i for i in sorted(undecided) if choices[i].devices & touch]
-        if not frontier:  # closed: undecided blocks cannot matter, take option 0
+        pick, bits = -1, undecided
+        while bits:  # the first undecided block (by index) driving a device at the component
+            low = bits & -bits
+            i = low.bit_length() - 1
+            if devices[i] & touch:
+                pick = i
+                break
+            bits ^= low
+        if pick < 0:  # closed: undecided blocks cannot matter, take option 0
             u = model.u_final(comp, on)  # exact, at or above the bound
             key = (round(u, _DIGITS), tuple(vals))
             if best[0] is None or key < best[0][0]:
                 best[0] = (key, comp, u)
             return
-        pick = frontier[0]
-        rest = undecided - {pick}
-        possible_rest = on
-        for i in rest:
-            possible_rest |= choices[i].devices
+        rest = undecided & ~(1 << pick)
+        if disjoint:
+            rest_dev = undecided_dev & ~devices[pick]
+        else:
+            rest_dev, bits = 0, rest
+            while bits:
+                low = bits & -bits
+                rest_dev |= devices[low.bit_length() - 1]
+                bits ^= low
+        possible_rest = on | rest_dev
         rest_reach, rest_tied = component(possible_rest)
         children = []
         for k, mask in enumerate(choices[pick].on):
@@ -123,17 +142,14 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         c = choices[pick]
         for bnd, k, on2, comp2 in children:
             set_option(c, k)
-            visit(on2, comp2, rest, bnd)
+            visit(on2, comp2, touch | model.touching(comp2 & ~comp), rest, rest_dev, bnd)
         set_option(c, 0)
 
     comp0, tied0 = component(model.always_on)
     if tied0:
         return None
-    everything = model.always_on
-    for c in choices:
-        everything |= c.devices
-    reach0, _ = component(everything)
-    visit(model.always_on, comp0, frozenset(range(n)), model.bound(reach0, comp0))
+    reach0, _ = component(model.always_on | union)
+    visit(model.always_on, comp0, model.touching(comp0), (1 << n) - 1, union, model.bound(reach0, comp0))
     if best[0] is None:
         return None
     (_, values), comp, u = best[0]

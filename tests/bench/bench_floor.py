@@ -3,24 +3,28 @@
 Run: ``python3 tests/bench/bench_floor.py [--transistors 100000] [--repeat 1]``
 
 The floor is our own minimal code, written here and not imported from
-``extract``: gdstk reads and flattens the top cell; every layer's shapes
-are merged (an STR-tree self-query, connected components, one union per
-cluster of touching shapes); channels are poly ∩ diffusion, source/drain
-pieces diffusion − poly; a channel with exactly two pieces along its edge
-is a transistor (W half the shared edge, L area / W, type from the
-implant under its point); conductors (pieces, poly, metal) are joined
-through the cuts that overlap them with positive area, and the label
-texts of supply, ground and clock nets join the rails they name; the nets
-are the connected components of that graph, and ``np.bincount`` sums wire
-area and perimeter, junction area and field perimeter, and gate area per
-net.  It has none of the tool's findings, naming, records or shapes.
+``extract`` (with the garbage collector paused, as the tool pauses it
+while it extracts): gdstk reads and flattens the top cell; every layer's
+shapes are merged (an STR-tree self-query, connected components, one
+union per cluster of touching shapes); channels are poly ∩ diffusion,
+source/drain pieces diffusion − poly; a channel with exactly two pieces
+along its edge is a transistor (W half the shared edge, L area / W, type
+from the implant under its point); conductors (pieces, poly, metal) are
+joined through the cuts that overlap them with positive area, and the
+label texts of supply, ground and clock nets join the rails they name;
+the nets are the connected components of that graph, and ``np.bincount``
+sums per net the wire capacitance (poly over field only), the junction
+capacitance (area, field and gate-edge perimeter) and the gate
+capacitance.  It has none of the tool's findings, naming, records or
+shapes.
 
 Both run on the same flat-placed array of the DYN_NAND3 sample cell (one
 GDSII file, every polygon in the top cell), each in a fresh process (so
 the peak RSS is that of one run): first the floor, then
 ``extract_layout`` with ``DYNSHARE_FLAT=1``.  The benchmark checks that
-the floor finds as many transistors and nets as the tool and prints the
-time and peak memory of both, their ratio and the load average.  Goal
+the floor finds as many transistors and nets as the tool (and prints the
+summed capacitance of both, which agree), and prints the time and peak
+memory of both, their ratio and the load average.  Goal
 (issue 12): the tool within 2× the floor measured in the same run.
 """
 
@@ -39,7 +43,8 @@ TECH = os.path.join(ROOT, "sample_layouts", "dsk18.toml")
 
 # The floor: no import from dynshare except the tech-file reader.
 FLOOR = r"""
-import resource, sys, time
+import gc, resource, sys, time
+gc.disable()  # as the tool does while it extracts: no cycles, millions of objects
 import gdstk
 import numpy as np
 import shapely

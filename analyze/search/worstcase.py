@@ -47,10 +47,14 @@ class Found:
     u_final: float
 
 
-def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
+def _brute(model: SharingModel, choices: list[Choice], below: float | None = None) -> Found | None:
     best = None
     for values, comp in iter_counted(model, choices):
         u = model.u_pattern(values, comp)
+        if below is not None:
+            if round(u, _DIGITS) < round(below, _DIGITS):
+                return Found(values, comp, u)
+            continue
         key = (round(u, _DIGITS), values)
         if best is None or key < best[0]:
             best = (key, comp, u)
@@ -60,7 +64,7 @@ def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
     return Found(values, comp, u)
 
 
-def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, components) -> Found | None:
+def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, components, below=None) -> Found | None:
     n = len(choices)
     if components is None:
         components = {}
@@ -76,7 +80,12 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         for col, v in zip(c.columns, c.options[0]):
             vals[col] = v
     best: list = [None]  # ((rounded u, key), component, u)
-    if seed is not None:
+    if below is not None:
+        # a bar no pattern ties with (the empty key sorts first): only a
+        # pattern strictly below it, after rounding, replaces it, and the
+        # first one ends the search
+        best[0] = ((round(below, _DIGITS), ()), None, below)
+    elif seed is not None:
         values, comp = seed
         u = model.u_pattern(values, comp)
         best[0] = ((round(u, _DIGITS), tuple(values)), comp, u)
@@ -84,6 +93,8 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
     def pruned(bound: float) -> bool:
         if best[0] is None:
             return False
+        if below is not None and best[0][1] is not None:
+            return True  # found one below the bar
         b = round(bound, _DIGITS)
         (bu, bkey), _, _ = best[0]
         return b > bu or (b == bu and tuple(vals) >= bkey)
@@ -150,7 +161,7 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         return None
     reach0, _ = component(model.always_on | union)
     visit(model.always_on, comp0, model.touching(comp0), (1 << n) - 1, union, model.bound(reach0, comp0))
-    if best[0] is None:
+    if best[0] is None or best[0][1] is None:
         return None
     (_, values), comp, u = best[0]
     return Found(values, comp, u)
@@ -163,6 +174,7 @@ def worst_case(
     *,
     seed: tuple[tuple[int, ...], int] | None = None,
     components: dict | None = None,
+    below: float | None = None,
 ) -> Found | None:
     """Find the worst counted pattern exactly.
 
@@ -183,11 +195,19 @@ def worst_case(
         Cache of :meth:`SharingModel.component` by conducting-device mask,
         shared between searches of the same switch network (the component
         does not depend on which nodes are pre-conditioned).
+    below : float or None
+        Ask only whether the worst case is below this normalised voltage:
+        return the first counted pattern found whose final voltage,
+        rounded to 1e-9 V as the search compares them, is below it
+        rounded (not necessarily the worst), or None when there is none,
+        which the search proves as it proves a worst case, pruning every
+        subtree whose bound reaches the bar.  ``seed`` is not used.
 
     Returns
     -------
     Found or None
-        None when no allowed pattern counts (every one discharges the node).
+        None when no allowed pattern counts (every one discharges the node),
+        or, with ``below``, when none ends below it.
 
     Notes
     -----
@@ -224,5 +244,5 @@ def worst_case(
     if any(not c.options for c in choices):
         return None
     if method == "brute":
-        return _brute(model, choices)
-    return _branch_and_bound(model, choices, seed, components)
+        return _brute(model, choices, below)
+    return _branch_and_bound(model, choices, seed, components, below)

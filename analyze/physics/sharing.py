@@ -134,9 +134,7 @@ class SharingModel:
         for q in self.charges:
             if not first._same_parts(q):
                 raise ValueError("every node must carry the same junction parts")
-        self.charges = tuple(
-            NodeCharge(q.c_lin, q.c0, first.pb, first.m, first.body_high, q.vdd) for q in self.charges
-        )
+        self.charges = tuple(first.like(q.c_lin, q.c0, q.vdd) for q in self.charges)
         self._c_lin = np.array([q.c_lin for q in self.charges])
         self._c0 = np.array([q.c0 for q in self.charges])
 
@@ -336,12 +334,9 @@ class SharingModel:
         idx = [i for i in range(mask.bit_length()) if (mask >> i) & 1]
         first = self.charges[0]
         if not idx:
-            hit = NodeCharge(0.0, np.zeros_like(first.c0), first.pb, first.m, first.body_high, self.vdd)
+            hit = first.like(0.0, np.zeros_like(first.c0), self.vdd)
         else:
-            hit = NodeCharge(
-                float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), first.pb, first.m,
-                first.body_high, self.vdd,
-            )
+            hit = first.like(float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), self.vdd)
         self._cache[key] = hit
         return hit
 

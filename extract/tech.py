@@ -10,6 +10,7 @@ kp µA/V².
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 
 __all__ = [
@@ -104,6 +105,15 @@ class NetRoles:
     power: tuple[str, ...] = ("VDD",)
     ground: tuple[str, ...] = ("VSS", "GND")
     clock: tuple[str, ...] = ()
+
+
+@functools.lru_cache(maxsize=64)
+def _roles(power: tuple, ground: tuple, clock: tuple) -> dict[str, str]:
+    """Upper-case name -> role; the first of power, ground, clock wins."""
+    roles: dict[str, str] = {}
+    for role, names in (("clock", clock), ("ground", ground), ("power", power)):
+        roles.update((n.upper(), role) for n in names)
+    return roles
 
 
 @dataclass(frozen=True)
@@ -234,10 +244,5 @@ class Tech:
         >>> Tech("t", 1.8, NetRoles(("vdd",), ("VSS",), ("CLK",)), {}, {}).role_of("VDD")
         'power'
         """
-        roles = self.__dict__.get("_roles_by_upper")
-        if roles is None:
-            roles = {}
-            for role, names in (("clock", self.nets.clock), ("ground", self.nets.ground), ("power", self.nets.power)):
-                roles.update({n.upper(): role for n in names})
-            self.__dict__["_roles_by_upper"] = roles
-        return roles.get(net_name.upper(), "signal")
+        nets = self.nets
+        return _roles(tuple(nets.power), tuple(nets.ground), tuple(nets.clock)).get(net_name.upper(), "signal")

@@ -154,24 +154,55 @@ class NodeCharge:
         empty = np.zeros(0)
         return cls(float(c_lin), empty, empty, empty, np.zeros(0, dtype=bool), float(vdd))
 
-    def __post_init__(self):
-        # Plain-float copy of the parts for the scalar path (root finding
-        # calls charge() with one voltage at a time).
-        parts = tuple(
-            (float(c), float(p), float(m), bool(h))
-            for c, p, m, h in zip(self.c0, self.pb, self.m, self.body_high)
-            if c != 0.0
-        )
-        object.__setattr__(self, "_parts", parts)
+    def __getattr__(self, name):
+        # Plain-float copies for the scalar path (root finding calls
+        # charge() with one voltage at a time), made on first use, so a sum
+        # of nodes that is never evaluated does not pay for them:
+        # ``_static`` per part pb, 1 − m, whether that is 0 (the log form),
+        # body high (shared by the sums made with like()); ``_parts`` adds
+        # c0·pb and leaves out the empty parts.
+        if name == "_static":
+            value = tuple(
+                (p, 1.0 - m, abs(1.0 - m) < 1e-12, bool(h))
+                for p, m, h in zip(self.pb.tolist(), self.m.tolist(), self.body_high.tolist())
+            )
+        elif name == "_parts":
+            value = tuple((c * p, p, e, log_form, h)
+                          for c, (p, e, log_form, h) in zip(self.c0.tolist(), self._static) if c != 0.0)
+        else:
+            raise AttributeError(name)
+        object.__setattr__(self, name, value)
+        return value
+
+    def like(self, c_lin: float, c0: np.ndarray, vdd: float | None = None) -> "NodeCharge":
+        """A node charge with these junction parts (``pb``, ``m``, body) and
+        other capacitances, sharing their scalar constants."""
+        out = NodeCharge(c_lin, c0, self.pb, self.m, self.body_high, self.vdd if vdd is None else vdd)
+        static = self.__dict__.get("_static")
+        if static is not None:
+            object.__setattr__(out, "_static", static)
+        return out
 
     def _charge_scalar(self, v: float) -> float:
         q = self.c_lin * v
-        for c0, pb, m, high in self._parts:
-            vr = self.vdd - v if high else v
-            x = 1.0 + vr / pb
-            e = 1.0 - m
-            dq = c0 * pb * (math.log(x) if abs(e) < 1e-12 else (x**e - 1.0) / e)
+        vdd = self.vdd
+        for c0pb, pb, e, log_form, high in self._parts:
+            x = 1.0 + ((vdd - v) if high else v) / pb
+            dq = c0pb * (math.log(x) if log_form else (x**e - 1.0) / e)
             q += -dq if high else dq
+        return q
+
+    def charge_at(self, v: float) -> float:
+        """:meth:`charge` at one voltage, remembered per node charge: for
+        the few fixed voltages (0, ``v_lim``, ``vdd``) that every solve of
+        :mod:`analyze.physics.redistribution` asks of the same sums."""
+        memo = self.__dict__.get("_memo")
+        if memo is None:
+            memo = {}
+            object.__setattr__(self, "_memo", memo)
+        q = memo.get(v)
+        if q is None:
+            q = memo[v] = self._charge_scalar(float(v))
         return q
 
     def _reverse_bias(self, v):
@@ -225,10 +256,7 @@ class NodeCharge:
     def __add__(self, other: "NodeCharge") -> "NodeCharge":
         """Nodes at one voltage: charges add (parts summed when alike)."""
         if self._same_parts(other):
-            return NodeCharge(
-                self.c_lin + other.c_lin, self.c0 + other.c0, self.pb, self.m,
-                self.body_high, self.vdd,
-            )
+            return self.like(self.c_lin + other.c_lin, self.c0 + other.c0)
         return NodeCharge(
             self.c_lin + other.c_lin,
             np.concatenate([self.c0, other.c0]),

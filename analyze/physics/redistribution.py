@@ -116,13 +116,14 @@ class Redistribution:
 
 def _solve(q: NodeCharge, target: float, lo: float, hi: float) -> float:
     """The ``V`` in ``[lo, hi]`` with ``q.charge(V) = target`` (Q increases with V)."""
-    f_lo = q.charge(lo) - target
+    f_lo = q.charge_at(lo) - target
     if f_lo >= 0.0:
         return lo
-    f_hi = q.charge(hi) - target
+    f_hi = q.charge_at(hi) - target
     if f_hi <= 0.0:
         return hi
-    return brentq(lambda v: q.charge(v) - target, lo, hi, xtol=_XTOL)
+    scalar = q._charge_scalar  # brentq asks at Python floats: what charge() does for them
+    return brentq(lambda v: scalar(v) - target, lo, hi, xtol=_XTOL)
 
 
 def final_voltage(
@@ -175,17 +176,18 @@ def final_voltage(
     """
     vdd = x.vdd
     v_lim = min(max(v_lim, 0.0), vdd)
-    q_tot = float(x.charge(vdd) + discharged.charge(0.0) + precharged.charge(vdd))
+    # charge_at: the charges at 0, v_lim and vdd are remembered per sum of nodes
+    q_tot = float(x.charge_at(vdd) + discharged.charge_at(0.0) + precharged.charge_at(vdd))
     everything = x + discharged + precharged
-    if float(everything.charge(v_lim)) >= q_tot:
+    if float(everything.charge_at(v_lim)) >= q_tot:
         v = _solve(everything, q_tot, 0.0, v_lim)
         return Redistribution(v, "a", v, v)
-    need = float(discharged.charge(v_lim) - discharged.charge(0.0))
-    target = float(x.charge(vdd)) - need
-    if float(x.charge(v_lim)) <= target:
+    need = float(discharged.charge_at(v_lim) - discharged.charge_at(0.0))
+    target = float(x.charge_at(vdd)) - need
+    if float(x.charge_at(v_lim)) <= target:
         v = _solve(x, target, v_lim, vdd)
         return Redistribution(v, "b", v_lim, vdd)
-    rest = q_tot - float(x.charge(v_lim) + discharged.charge(v_lim))
+    rest = q_tot - float(x.charge_at(v_lim) + discharged.charge_at(v_lim))
     v_p = _solve(precharged, rest, v_lim, vdd)
     return Redistribution(v_lim, "c", v_lim, v_p)
 

@@ -18,6 +18,7 @@ device i).
 
 from __future__ import annotations
 
+import copy as _copy
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -125,13 +126,7 @@ class SharingModel:
     _cache: dict = field(default_factory=dict, repr=False)
 
     def __post_init__(self):
-        self._adj = [[] for _ in self.nodes]
-        self.node_devices = [0] * len(self.nodes)
-        for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)):
-            for s, t in ((a, b), (b, a)):
-                if s != RAIL and s != t:
-                    self._adj[s].append((1 << d, t))
-                    self.node_devices[s] |= 1 << d
+        self._index_devices()
         self.all_nodes = (1 << len(self.nodes)) - 1
         # Every node carries the same junction parts (analyze.physics.charge.JUNCTION_KINDS),
         # so sums of nodes are sums of rows; share the part arrays for fast addition.
@@ -139,11 +134,30 @@ class SharingModel:
         for q in self.charges:
             if not first._same_parts(q):
                 raise ValueError("every node must carry the same junction parts")
-        self.charges = tuple(
-            NodeCharge(q.c_lin, q.c0, first.pb, first.m, first.body_high, q.vdd) for q in self.charges
-        )
+        self.charges = tuple(first.like(q.c_lin, q.c0, q.vdd) for q in self.charges)
         self._c_lin = np.array([q.c_lin for q in self.charges])
         self._c0 = np.array([q.c0 for q in self.charges])
+
+    def _index_devices(self) -> None:
+        """Per node: its devices, those to the rail, the node across each
+        other one (device bit -> node) and the nodes one device away; per
+        device bit its two ends."""
+        self.node_devices = [0] * len(self.nodes)
+        self._to_rail = [0] * len(self.nodes)
+        self._across: list[dict[int, int]] = [{} for _ in self.nodes]
+        self._ends = {1 << d: (a, b) for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)) if a != b}
+        for d, (a, b) in enumerate(zip(self.dev_a, self.dev_b)):
+            for s, t in ((a, b), (b, a)):
+                if s != RAIL and s != t:
+                    self.node_devices[s] |= 1 << d
+                    if t == RAIL:
+                        self._to_rail[s] |= 1 << d
+                    else:
+                        self._across[s][1 << d] = t
+        self._near = [0] * len(self.nodes)  # nodes one device away (any device)
+        for s, other in enumerate(self._across):
+            for t in other.values():
+                self._near[s] |= 1 << t
 
     # -- switch network ------------------------------------------------------
     def with_precharged(self, names) -> "SharingModel":
@@ -166,9 +180,8 @@ class SharingModel:
             mask |= 1 << self.nodes.index(name)
         if mask == self.precharged:
             return self
-        copy = SharingModel(**{k: getattr(self, k) for k in self.__dataclass_fields__})
+        copy = _copy.copy(self)  # the switch network and charges as they are, prepared once
         copy.precharged = mask
-        copy._cache = self._cache
         return copy
 
     def conducting(self, values) -> int:
@@ -183,19 +196,71 @@ class SharingModel:
         """Nodes joined to the dynamic node through devices ``on``.
 
         Returns ``(node bitmask, tied)``; ``tied`` is True when the rail is
-        reached.  The rail is never passed through.  Depth-first search,
-        O(devices).
+        reached.  The rail is never passed through.  Depth-first search
+        that, at each node, walks only the set bits of ``on`` among the
+        node's devices: O(conducting devices at the nodes reached).
         """
-        seen, stack, tied = 1, [0], False
-        adj = self._adj
-        while stack:
-            for bit, j in adj[stack.pop()]:
-                if on & bit:
-                    if j == RAIL:
+        return self._grow(1, False, [0], on)
+
+    def component_from(self, seen: int, tied: bool, on: int, new: int) -> tuple[int, bool]:
+        """:meth:`component` of ``on``, given ``(seen, tied)``, the component
+        of ``on & ~new`` (fewer devices conducting).
+
+        A component only grows as devices turn on, so the search starts
+        from ``seen``: a new device with an end in ``seen`` adds its other
+        end, and the nodes so added are searched as in :meth:`component`.
+        O(new devices + conducting devices at the nodes added), where a
+        fresh search is O(conducting devices at every node reached).
+
+        Examples
+        --------
+        >>> m = SharingModel.__new__(SharingModel)
+        >>> m.nodes, m.dev_a, m.dev_b = ("X", "a", "b"), (0, 1, 2), (1, 2, RAIL)
+        >>> m._index_devices()
+        >>> m.component(0b001)
+        (3, False)
+        >>> m.component_from(3, False, 0b011, 0b010), m.component(0b011)
+        ((7, False), (7, False))
+        >>> m.component_from(7, False, 0b111, 0b100)
+        (7, True)
+        """
+        stack = []
+        ends = self._ends
+        while new:
+            bit = new & -new
+            new ^= bit
+            a, b = ends.get(bit, (RAIL, RAIL))  # a device from a node to itself joins nothing
+            for s, t in ((a, b), (b, a)):
+                if s != RAIL and (seen >> s) & 1:
+                    if t == RAIL:
                         tied = True
-                    elif not (seen >> j) & 1:
-                        seen |= 1 << j
+                    elif not (seen >> t) & 1:
+                        seen |= 1 << t
+                        stack.append(t)
+        return self._grow(seen, tied, stack, on)
+
+    def _grow(self, seen: int, tied: bool, stack: list, on: int) -> tuple[int, bool]:
+        """Depth-first search through devices ``on`` from the nodes of
+        ``stack`` (already in ``seen``); at each node only the set bits of
+        ``on`` among its devices are walked."""
+        across, to_rail, at, near = self._across, self._to_rail, self.node_devices, self._near
+        while stack:
+            s = stack.pop()
+            live = on & at[s]
+            if live & to_rail[s]:
+                tied = True
+                live &= ~to_rail[s]
+            other = across[s]
+            while live:
+                bit = live & -live
+                live ^= bit
+                j = other[bit]
+                if not (seen >> j) & 1:
+                    seen |= 1 << j
+                    if near[j] & ~seen:
                         stack.append(j)
+                    elif on & to_rail[j]:  # every neighbour is in already: only the rail is news
+                        tied = True
         return seen, tied
 
     def touching(self, node_mask: int) -> int:
@@ -259,14 +324,21 @@ class SharingModel:
         return shared & ~self.precharged, shared & self.precharged
 
     def _sum(self, mask: int) -> NodeCharge:
+        """The nodes of ``mask`` as one :class:`NodeCharge`; cached (it does
+        not depend on which nodes are pre-conditioned, so the copies of
+        :meth:`with_precharged` share it)."""
+        key = ("sum", mask)
+        hit = self._cache.get(key)
+        if hit is not None:
+            return hit
         idx = [i for i in range(mask.bit_length()) if (mask >> i) & 1]
         first = self.charges[0]
         if not idx:
-            return NodeCharge(0.0, np.zeros_like(first.c0), first.pb, first.m, first.body_high, self.vdd)
-        return NodeCharge(
-            float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), first.pb, first.m,
-            first.body_high, self.vdd,
-        )
+            hit = first.like(0.0, np.zeros_like(first.c0), self.vdd)
+        else:
+            hit = first.like(float(self._c_lin[idx].sum()), self._c0[idx].sum(axis=0), self.vdd)
+        self._cache[key] = hit
+        return hit
 
     def redistribute(self, discharged: int, precharged: int) -> Redistribution:
         """Topology-free normalised final state for these shared node sets

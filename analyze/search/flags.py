@@ -14,7 +14,7 @@ from itertools import combinations
 
 from analyze.search.patterns import Choice
 from analyze.physics.sharing import SharingModel
-from analyze.search.worstcase import Found, worst_case
+from analyze.search.worstcase import _DIGITS, Found, worst_case
 from extract.circuit import Circuit
 
 __all__ = ["Flag", "find_flags", "SEARCH_BUDGET", "SET_LIMIT", "REFUTE_TRIES"]
@@ -153,10 +153,20 @@ class _Searches:
                     best = (u, vals, comp2)
         return best if best is not None else (self.u(mask, pattern), values, comp)
 
+    def beaten(self, mask: int, u_best: float) -> bool:
+        """True when the worst case under ``mask`` is strictly below
+        ``u_best`` (rounded as the search compares them): a search that
+        stops at the first pattern below it (:func:`worst_case` with
+        ``below``), cheaper than the worst case when it is well below."""
+        return worst_case(self.under(mask), self.choices, components=self.components, below=u_best) is not None
+
     def best_addition(self, mask: int, options: list[int]) -> int:
         """The node ``i`` of ``options`` maximising the worst case under
         ``mask | 1 << i`` (the first on a tie), exactly, searching only the
-        nodes whose pool bound could still win."""
+        nodes whose pool bound could still win.  Where that bound (a
+        repaired pattern) is above the best so far even after rounding, a
+        node is first only asked whether its worst case is below the best
+        (:meth:`beaten`): strictly below, it cannot win."""
         base = self.search(mask)
         bounds = []
         for i in options:
@@ -167,7 +177,11 @@ class _Searches:
         for ub, i, seed in bounds:
             if best is not None and ub < best[0] - 1e-12:
                 break  # sorted: no later bound reaches the best exact value
-            w = self.search(mask | 1 << i, seed).u_final
+            m = mask | 1 << i
+            if (best is not None and m not in self.found and round(ub, _DIGITS) > round(best[0], _DIGITS)
+                    and self.beaten(m, best[0])):
+                continue  # strictly below the best: it cannot win
+            w = self.search(m, seed).u_final
             if best is None or w > best[0] or (w == best[0] and i < best[1]):
                 best = (w, i)
         return best[1]

@@ -47,10 +47,14 @@ class Found:
     u_final: float
 
 
-def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
+def _brute(model: SharingModel, choices: list[Choice], below: float | None = None) -> Found | None:
     best = None
     for values, comp in iter_counted(model, choices):
         u = model.u_pattern(values, comp)
+        if below is not None:
+            if round(u, _DIGITS) < round(below, _DIGITS):
+                return Found(values, comp, u)
+            continue
         key = (round(u, _DIGITS), values)
         if best is None or key < best[0]:
             best = (key, comp, u)
@@ -60,7 +64,7 @@ def _brute(model: SharingModel, choices: list[Choice]) -> Found | None:
     return Found(values, comp, u)
 
 
-def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, components) -> Found | None:
+def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, components, below=None) -> Found | None:
     n = len(choices)
     if components is None:
         components = {}
@@ -76,7 +80,12 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         for col, v in zip(c.columns, c.options[0]):
             vals[col] = v
     best: list = [None]  # ((rounded u, key), component, u)
-    if seed is not None:
+    if below is not None:
+        # a bar no pattern ties with (the empty key sorts first): only a
+        # pattern strictly below it, after rounding, replaces it, and the
+        # first one ends the search
+        best[0] = ((round(below, _DIGITS), ()), None, below)
+    elif seed is not None:
         values, comp = seed
         u = model.u_pattern(values, comp)
         best[0] = ((round(u, _DIGITS), tuple(values)), comp, u)
@@ -84,6 +93,8 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
     def pruned(bound: float) -> bool:
         if best[0] is None:
             return False
+        if below is not None and best[0][1] is not None:
+            return True  # found one below the bar
         b = round(bound, _DIGITS)
         (bu, bkey), _, _ = best[0]
         return b > bu or (b == bu and tuple(vals) >= bkey)
@@ -92,46 +103,65 @@ def _branch_and_bound(model: SharingModel, choices: list[Choice], seed, componen
         for col, v in zip(c.columns, c.options[k]):
             vals[col] = v
 
-    def visit(on: int, comp: int, undecided: frozenset, bound: float) -> None:
+    devices = [c.devices for c in choices]
+    union = 0
+    for d in devices:
+        union |= d
+    disjoint = sum(bin(d).count("1") for d in devices) == bin(union).count("1")  # each gate in one block
+
+    def visit(on: int, comp: int, touch: int, undecided: int, undecided_dev: int, bound: float) -> None:
+        # undecided: bitmask of choice indices; undecided_dev: their devices;
+        # touch: the devices with a terminal in comp
         if pruned(bound):
             return
-        touch = model.touching(comp)
-        frontier = [i for i in sorted(undecided) if choices[i].devices & touch]
-        if not frontier:  # closed: undecided blocks cannot matter, take option 0
+        pick, bits = -1, undecided
+        while bits:  # the first undecided block (by index) driving a device at the component
+            low = bits & -bits
+            i = low.bit_length() - 1
+            if devices[i] & touch:
+                pick = i
+                break
+            bits ^= low
+        if pick < 0:  # closed: undecided blocks cannot matter, take option 0
             u = model.u_final(comp, on)  # exact, at or above the bound
             key = (round(u, _DIGITS), tuple(vals))
             if best[0] is None or key < best[0][0]:
                 best[0] = (key, comp, u)
             return
-        pick = frontier[0]
-        rest = undecided - {pick}
-        possible_rest = on
-        for i in rest:
-            possible_rest |= choices[i].devices
+        rest = undecided & ~(1 << pick)
+        if disjoint:
+            rest_dev = undecided_dev & ~devices[pick]
+        else:
+            rest_dev, bits = 0, rest
+            while bits:
+                low = bits & -bits
+                rest_dev |= devices[low.bit_length() - 1]
+                bits ^= low
+        possible_rest = on | rest_dev
+        rest_reach, rest_tied = component(possible_rest)
         children = []
         for k, mask in enumerate(choices[pick].on):
+            # both grow from a component already known: this one's, and what
+            # the other undecided blocks could join
             on2 = on | mask
-            comp2, tied = component(on2)
+            comp2, tied = model.component_from(comp, False, on2, mask & ~on)
             if tied:
                 continue
-            reach, _ = component(possible_rest | mask)
+            reach, _ = model.component_from(rest_reach, rest_tied, possible_rest | mask, mask & ~possible_rest)
             children.append((round(model.bound(reach, comp2), _DIGITS), k, on2, comp2))
         children.sort(key=lambda t: (t[0], t[1]))
         c = choices[pick]
         for bnd, k, on2, comp2 in children:
             set_option(c, k)
-            visit(on2, comp2, rest, bnd)
+            visit(on2, comp2, touch | model.touching(comp2 & ~comp), rest, rest_dev, bnd)
         set_option(c, 0)
 
     comp0, tied0 = component(model.always_on)
     if tied0:
         return None
-    everything = model.always_on
-    for c in choices:
-        everything |= c.devices
-    reach0, _ = component(everything)
-    visit(model.always_on, comp0, frozenset(range(n)), model.bound(reach0, comp0))
-    if best[0] is None:
+    reach0, _ = component(model.always_on | union)
+    visit(model.always_on, comp0, model.touching(comp0), (1 << n) - 1, union, model.bound(reach0, comp0))
+    if best[0] is None or best[0][1] is None:
         return None
     (_, values), comp, u = best[0]
     return Found(values, comp, u)
@@ -144,6 +174,7 @@ def worst_case(
     *,
     seed: tuple[tuple[int, ...], int] | None = None,
     components: dict | None = None,
+    below: float | None = None,
 ) -> Found | None:
     """Find the worst counted pattern exactly.
 
@@ -164,11 +195,19 @@ def worst_case(
         Cache of :meth:`SharingModel.component` by conducting-device mask,
         shared between searches of the same switch network (the component
         does not depend on which nodes are pre-conditioned).
+    below : float or None
+        Ask only whether the worst case is below this normalised voltage:
+        return the first counted pattern found whose final voltage,
+        rounded to 1e-9 V as the search compares them, is below it
+        rounded (not necessarily the worst), or None when there is none,
+        which the search proves as it proves a worst case, pruning every
+        subtree whose bound reaches the bar.  ``seed`` is not used.
 
     Returns
     -------
     Found or None
-        None when no allowed pattern counts (every one discharges the node).
+        None when no allowed pattern counts (every one discharges the node),
+        or, with ``below``, when none ends below it.
 
     Notes
     -----
@@ -205,5 +244,5 @@ def worst_case(
     if any(not c.options for c in choices):
         return None
     if method == "brute":
-        return _brute(model, choices)
-    return _branch_and_bound(model, choices, seed, components)
+        return _brute(model, choices, below)
+    return _branch_and_bound(model, choices, seed, components, below)

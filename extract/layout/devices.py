@@ -21,7 +21,7 @@ import numpy as np
 import shapely
 
 from extract.errors import Finding
-from extract.layout.geometry import inside_any, parts, representative_points, subtract_overlapping
+from extract.layout.geometry import grouped, inside_any, parts, representative_points, subtract_overlapping
 
 __all__ = ["DiffusionPieces", "Channels", "device_type", "find_channels"]
 
@@ -103,9 +103,10 @@ def device_type(points: np.ndarray, pimplant, nimplant, nwell) -> np.ndarray:
     >>> device_type(pts, none, np.array([box(5, 0, 6, 1)]), np.array([box(0, 0, 1, 1)])).tolist()
     ['pmos', 'nmos', 'nmos']
     """
-    in_p = inside_any(pimplant, points)
-    in_n = inside_any(nimplant, points)
-    in_w = inside_any(nwell, points)
+    geoms = shapely.points(points) if len(points) else points
+    in_p = inside_any(pimplant, geoms)
+    in_n = inside_any(nimplant, geoms)
+    in_w = inside_any(nwell, geoms)
     is_p = in_p | (~in_n & in_w)
     return np.where(is_p, "pmos", "nmos")
 
@@ -155,9 +156,12 @@ def find_channels(layer: str, diffusion, poly, implants, tol: float = 1e-6):
     if len(diffusion) and len(poly):
         di, pj = shapely.STRtree(poly).query(diffusion, predicate="intersects")
         channel_geoms = _flat_parts(shapely.intersection(diffusion[di], poly[pj]))
+        # the same pairs give each diffusion shape the poly it loses
+        # (what subtract_overlapping(diffusion, poly) would query again)
+        piece_geoms = _flat_parts(shapely.difference(diffusion, grouped(poly[pj], di, len(diffusion))))
     else:
         channel_geoms = np.empty(0, dtype=object)
-    piece_geoms = _flat_parts(subtract_overlapping(diffusion, poly))
+        piece_geoms = _flat_parts(subtract_overlapping(diffusion, poly))
     findings: list[Finding] = []
     ch_pts = representative_points(channel_geoms)
     pc_pts = representative_points(piece_geoms)

@@ -156,6 +156,43 @@ def _units(path, body: bytes, where: str, summary: GdsSummary) -> None:
     summary.db_in_user, summary.db_unit_m = per_user, metres
 
 
+_HEADER = struct.Struct(">HBB")
+_BOUNDARY_LAYER = bytes.fromhex("00040800" "00060d02")  # BOUNDARY, then LAYER's header
+_DATATYPE = bytes.fromhex("00060e02")
+_TEXT_LAYER = bytes.fromhex("00040c00" "00060d02")  # TEXT, then LAYER's header
+_TEXTTYPE = bytes.fromhex("00061602")
+_PRESENTATION = bytes.fromhex("00061701")
+_XY_ONE_POINT = bytes.fromhex("000c1003")
+_ENDEL = bytes.fromhex("00041100")
+
+
+def _plain_element(data: bytes, pos: int, n: int) -> tuple[int, int]:
+    """``(records, end)`` of the plain element at ``pos``, or ``(0, pos)``.
+
+    Plain elements are ``BOUNDARY LAYER DATATYPE XY ENDEL`` with an XY of
+    at least 3 points and ``TEXT LAYER TEXTTYPE [PRESENTATION] XY STRING
+    ENDEL`` with an XY of one point: almost every element of a flat
+    layout.  Every header is compared as bytes (length, record and data
+    type), so a plain element is exactly one the general walk accepts;
+    anything else returns ``(0, pos)`` and is walked record by record.
+    """
+    if data.startswith(_BOUNDARY_LAYER, pos) and data.startswith(_DATATYPE, pos + 10) and pos + 20 <= n:
+        length, code, dtype = _HEADER.unpack_from(data, pos + 16)
+        end = pos + 16 + length
+        if code == 0x10 and dtype == 3 and length >= 28 and length % 8 == 4 and data.startswith(_ENDEL, end):
+            return 5, end + 4
+    elif data.startswith(_TEXT_LAYER, pos) and data.startswith(_TEXTTYPE, pos + 10):
+        q, records = pos + 16, 6
+        if data.startswith(_PRESENTATION, q):
+            q, records = q + 6, 7
+        if data.startswith(_XY_ONE_POINT, q) and q + 16 <= n:
+            length, code, dtype = _HEADER.unpack_from(data, q + 12)
+            end = q + 12 + length
+            if code == 0x19 and dtype == 6 and length >= 4 and length % 2 == 0 and data.startswith(_ENDEL, end):
+                return records, end + 4
+    return 0, pos
+
+
 def check_gds_grammar(path: str, data: bytes) -> GdsSummary:
     """Walk the records of a GDSII stream and check them against the grammar.
 
@@ -181,8 +218,11 @@ def check_gds_grammar(path: str, data: bytes) -> GdsSummary:
     One pass over the records with a small state machine: library header,
     structure list, structure, element.  Inside an element each record
     has a position in the element's grammar; positions must increase and
-    the required ones must all be there at ENDEL.  Cost: O(records), a few
-    microseconds each; no record data is copied except names.
+    the required ones must all be there at ENDEL.  Plain boundaries and
+    texts (fixed headers, see :func:`_plain_element`) are recognised by a
+    few byte comparisons and skipped whole.  Cost: O(records), a few
+    microseconds per record walked and about one per plain element; no
+    record data is copied except names.
 
     Examples
     --------
@@ -205,7 +245,7 @@ def check_gds_grammar(path: str, data: bytes) -> GdsSummary:
     """
     n = len(data)
     summary = GdsSummary()
-    unpack = struct.Struct(">HBB").unpack_from
+    unpack = _HEADER.unpack_from
     pos = 0
     index = 0
     state = "start"  # start, bgnlib, libhead, lib, strname, str, el, prop
@@ -217,6 +257,11 @@ def check_gds_grammar(path: str, data: bytes) -> GdsSummary:
     structures: dict[str, int] = {}
     order, seen, strclass_ok = None, set(), False
     while True:
+        if state == "str":
+            records, end = _plain_element(data, pos, n)
+            while records:
+                index, pos, strclass_ok = index + records, end, False
+                records, end = _plain_element(data, pos, n)
         index += 1
         where = f"record {index} (byte {pos})"
         if pos + 4 > n:

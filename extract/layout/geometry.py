@@ -183,6 +183,9 @@ def merge_parts(geoms) -> np.ndarray:
 def inside_any(regions, points: np.ndarray) -> np.ndarray:
     """Boolean mask: which ``points`` lie in any of ``regions`` (an array).
 
+    ``points`` is an (n, 2) array of coordinates or an array of shapely
+    points (made once when several region sets are asked about).
+
     >>> from shapely import box
     >>> inside_any(np.array([box(0, 0, 1, 1), box(5, 5, 6, 6)]), np.array([[5.5, 5.5], [3, 3]])).tolist()
     [True, False]
@@ -193,7 +196,8 @@ def inside_any(regions, points: np.ndarray) -> np.ndarray:
     if len(regions) == 0 or len(points) == 0:
         return mask
     tree = shapely.STRtree(regions)
-    pi, _ = tree.query(shapely.points(points), predicate="intersects")
+    geoms = points if points.dtype == object else shapely.points(points)
+    pi, _ = tree.query(geoms, predicate="intersects")
     mask[pi] = True
     return mask
 

@@ -367,19 +367,32 @@ def flatten_cell(layout: LayoutFile, cell: str | None = None, layers=None) -> Fl
             polys = [poly for layer, datatype in sorted(wanted) for poly in top.get_polygons(
                 apply_repetitions=True, include_paths=True, depth=None, layer=layer, datatype=datatype)]
         labels = top.get_labels(apply_repetitions=True, depth=None)
+    by_key: dict[tuple[int, int], list] = {}
+    snapped: list[np.ndarray] = []
     for poly in polys:
         key = (int(poly.layer), int(poly.datatype))
-        pts = np.round(np.asarray(poly.points, dtype=float) / grid_um) * grid_um
-        if len(pts) >= 3:
-            flat.polygons.setdefault(key, []).append(pts)
+        if wanted is None or key in wanted:
+            by_key.setdefault(key, []).append(poly.points)
+    for key, arrays in by_key.items():
+        arrays = [a for a in arrays if len(a) >= 3]
+        if not arrays:
+            continue
+        # snapped to the grid all at once, then split into views per polygon
+        snapped.append(np.round(np.concatenate(arrays).astype(float) / grid_um) * grid_um)
+        ends = np.cumsum([len(a) for a in arrays]).tolist()
+        flat.polygons[key] = [snapped[-1][i:j] for i, j in zip([0] + ends[:-1], ends)]
+    # label origins snapped at once (np.rint rounds half to even, as round() does)
+    origins = np.array([lab.origin for lab in labels], dtype=float).reshape(-1, 2)
+    snapped_origins = np.rint(origins / grid_um) * grid_um + 0.0  # + 0.0: no negative zero, as round() gives
+    if not np.isfinite(snapped_origins).all():  # round() refuses these: keep its error
+        snapped_origins = [[round(v / grid_um) * grid_um for v in lab.origin] for lab in labels]
     try:
-        for lab in labels:
-            x, y = (round(v / grid_um) * grid_um for v in lab.origin)
+        for lab, (x, y) in zip(labels, np.asarray(snapped_origins).tolist()):
             flat.labels.append(FlatLabel(str(lab.text), x, y, (int(lab.layer), int(lab.texttype))))
     except (TypeError, UnicodeError):
         raise InputError(path, "a text label is not valid text (bytes outside ASCII/UTF-8)", f"cell {cell}") from None
-    for pts in (p for arrays in flat.polygons.values() for p in arrays):
-        if not np.isfinite(pts).all() or np.abs(pts).max() > 1e8:
+    for coords in snapped:
+        if not np.isfinite(coords).all() or np.abs(coords).max() > 1e8:
             raise InputError(path, "coordinates beyond 100 m: not a usable layout", f"cell {cell}")
     return flat
 

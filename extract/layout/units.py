@@ -31,7 +31,7 @@ from extract.layout.geometry import merge_parts, polygons_from_arrays, represent
 from extract.layout.reader import FlatLayout
 from extract.tech import Tech
 
-__all__ = ["CellUnits", "cell_units", "layer_shapes", "best_of"]
+__all__ = ["CellUnits", "cell_units", "layer_shapes", "best_of", "round_each"]
 
 
 @dataclass
@@ -98,6 +98,32 @@ def _union(arrays):
     if len(arrays) == 1:
         return arrays[0]
     return merge_parts(np.concatenate(arrays))
+
+
+def round_each(values, ndigits: int) -> list:
+    """``[round(float(v), ndigits) for v in values]``, computed once per distinct value.
+
+    Python's ``round`` rounds the exact binary value to a decimal place
+    (numpy's multiplies first, and can differ in the last bit); an array of
+    placed cells repeats few distinct values, so each is rounded once and
+    the results spread with numpy.  Values are told apart by their bits, so
+    -0.0 stays -0.0.
+
+    Examples
+    --------
+    >>> round_each(np.array([0.1 + 0.2, 0.1 + 0.2, -0.0, 2.675]), 2)
+    [0.3, 0.3, -0.0, 2.67]
+
+    Notes
+    -----
+    One ``np.unique`` (O(n log n)) and one ``round`` per distinct value.
+    """
+    values = np.ascontiguousarray(values, dtype=float)
+    if len(values) == 0:
+        return []
+    bits, inverse = np.unique(values.view(np.int64), return_inverse=True)
+    rounded = np.array([round(v, ndigits) for v in bits.view(float).tolist()])
+    return rounded[inverse.ravel()].tolist()
 
 
 def best_of(group: np.ndarray, is_diff: np.ndarray, area: np.ndarray, points: np.ndarray, n: int) -> np.ndarray:
@@ -225,17 +251,7 @@ def cell_units(flat: FlatLayout, tech: Tech, shapes: dict | None = None) -> Cell
         layer = tech.layers[name]
         np.add.at(cap[:, 3], net_of[idx], layer.area * a + layer.fringe * p)
 
-    junctions: list[dict] = [{} for _ in range(n)]
-    for pc, off in zip(pieces, piece_offset):
-        field = pc.field_edge
-        for j in range(len(pc.geoms)):
-            k = net_of[off + j]
-            t = str(pc.type[j])
-            geo = JunctionGeometry(round(float(pc.area[j]), 9), round(float(field[j]), 9), round(float(pc.gate_edge[j]), 9))
-            junctions[k][t] = junctions[k].get(t, JunctionGeometry()) + geo
-            jp = junction_parts(tech.mos[t], geo)
-            cap[k, :3] += (jp.junction_area, jp.junction_sidewall, jp.junction_gate_edge)
-
+    junctions = _junctions(tech, pieces, net_of[: sum(len(pc.geoms) for pc in pieces)], cap)
     dev = _devices(tech, chans, pieces, piece_offset, conductors, net_of, cap)
     return CellUnits(
         cell=flat.cell,
@@ -253,47 +269,95 @@ def cell_units(flat: FlatLayout, tech: Tech, shapes: dict | None = None) -> Cell
     )
 
 
+def _junctions(tech, pieces, piece_unit, cap) -> list:
+    """Junction geometry per unit and type (rounded per piece to 1e-9, as
+    reported) and the junction capacitance added to ``cap[:, :3]``.
+
+    The sums run piece by piece in order (``np.add.at`` is sequential), and
+    each unit's dict holds its types in order of their first piece.
+    """
+    n = len(cap)
+    junctions: list[dict] = [{} for _ in range(n)]
+    if len(piece_unit) == 0:
+        return junctions
+    names, code = np.unique(np.concatenate([pc.type for pc in pieces]).astype(str), return_inverse=True)
+    code = code.ravel()
+    # Python's round (correctly rounded decimal), as the records always had
+    geo = np.array([round_each(np.concatenate([getattr(pc, f) for pc in pieces]), 9)
+                    for f in ("area", "field_edge", "gate_edge")]).T
+    sums = np.zeros((n, len(names), 3))
+    np.add.at(sums, (piece_unit, code), geo)
+    parts = np.empty_like(geo)
+    for c, name in enumerate(names.tolist()):
+        mask = code == c
+        jp = junction_parts(tech.mos[name], JunctionGeometry(*geo[mask].T))
+        parts[mask] = np.stack([jp.junction_area, jp.junction_sidewall, jp.junction_gate_edge], axis=1)
+    np.add.at(cap[:, :3], piece_unit, parts)
+    _, first = np.unique(piece_unit * len(names) + code, return_index=True)
+    first.sort()
+    units, codes = piece_unit[first], code[first]
+    for k, c, vals in zip(units.tolist(), codes.tolist(), sums[units, codes].tolist()):
+        junctions[k][str(names[c])] = JunctionGeometry(*vals)
+    return junctions
+
+
 def _devices(tech, chans, pieces, piece_offset, conductors, net_of, cap) -> dict:
     """Device arrays in order of position; each piece's junction given to
-    the first device that uses it; gate and overlap capacitance added."""
+    the first device that uses it; gate and overlap capacitance added.
+
+    Notes
+    -----
+    Array operations throughout: the order is a stable sort on the
+    position rounded with Python's ``round`` (the same order as sorting
+    the records), a piece's first device is its first occurrence in the
+    interleaved (a, b) sequence, and the capacitance sums run device by
+    device with ``np.add.at`` in that order, as the records were summed.
+    """
+    keys = ("type", "gate", "a", "b", "w", "l", "x", "y", "area_a", "perim_a", "area_b", "perim_b")
+    types = {"type": object, "gate": np.intp, "a": np.intp, "b": np.intp}
+    kept = [(ch, off) for ch, off in zip(chans, piece_offset) if len(ch.geoms)]
+    if not kept:
+        return {k: np.asarray([], dtype=types.get(k, float)) for k in keys}
     poly_idx = np.flatnonzero(np.isin(conductors.layer, [n for n, l in tech.layers.items() if l.kind == "poly"]))
     poly_tree = shapely.STRtree(conductors.geoms[poly_idx]) if len(poly_idx) else None
-    raw = []
-    for ch, pc, off in zip(chans, pieces, piece_offset):
-        if len(ch.geoms) == 0:
-            continue
+    gates = []
+    for ch, _ in kept:
         pi, gi = poly_tree.query(shapely.points(ch.points), predicate="intersects")
         gate_of = np.full(len(ch.geoms), -1)
         gate_of[pi[::-1]] = poly_idx[gi[::-1]]  # first hit wins
-        for k in range(len(ch.geoms)):
-            raw.append((str(ch.type[k]), off + int(ch.piece_a[k]), off + int(ch.piece_b[k]), float(ch.edge_a[k]),
-                        float(ch.edge_b[k]), float(ch.w[k]), float(ch.l[k]), int(net_of[gate_of[k]]),
-                        float(ch.points[k][0]), float(ch.points[k][1])))
-    raw.sort(key=lambda r: (round(r[8], 6), round(r[9], 6)))
-    piece_geo = {}
-    for pc, off in zip(pieces, piece_offset):
-        field = pc.field_edge
-        for j in range(len(pc.geoms)):
-            piece_geo[off + j] = (float(pc.area[j]), float(field[j]))
-    owned: set[int] = set()
-    cols = {k: [] for k in ("type", "gate", "a", "b", "w", "l", "x", "y", "area_a", "perim_a", "area_b", "perim_b")}
-    for t, a, b, ea, eb, w, l, gate, x, y in raw:
-        geo = []
-        for piece, edge in ((a, ea), (b, eb)):
-            if piece not in owned:
-                owned.add(piece)
-                ar, f = piece_geo[piece]
-                geo.append((ar, f + edge))
-            else:
-                geo.append((0.0, edge))
-        for key, v in zip(cols, (t, gate, int(net_of[a]), int(net_of[b]), w, l, x, y, *geo[0], *geo[1])):
-            cols[key].append(v)
-        mos = tech.mos[t]
-        g = gate_parts(mos, w, l)
-        cap[gate, 4] += g.gate
-        cap[gate, 5] += g.overlap
-        ov = overlap_per_side(mos, w).overlap
-        cap[net_of[a], 5] += ov
-        cap[net_of[b], 5] += ov
-    types = {"type": object, "gate": np.intp, "a": np.intp, "b": np.intp}
-    return {k: np.asarray(v, dtype=types.get(k, float)) for k, v in cols.items()}
+        gates.append(net_of[gate_of])
+    cat = lambda f: np.concatenate([f(ch, off) for ch, off in kept])  # noqa: E731
+    points = cat(lambda ch, off: ch.points)
+    # stable: ties keep the channel order
+    order = np.lexsort((np.array(round_each(points[:, 1], 6)), np.array(round_each(points[:, 0], 6))))
+    t = cat(lambda ch, off: ch.type).astype(str).astype(object)[order]
+    a = cat(lambda ch, off: off + ch.piece_a)[order]
+    b = cat(lambda ch, off: off + ch.piece_b)[order]
+    edge_a, edge_b = cat(lambda ch, off: ch.edge_a)[order], cat(lambda ch, off: ch.edge_b)[order]
+    w, l = cat(lambda ch, off: ch.w)[order], cat(lambda ch, off: ch.l)[order]
+    gate = np.concatenate(gates)[order]
+    piece_area = np.concatenate([pc.area for pc in pieces]).astype(float)
+    piece_field = np.concatenate([pc.field_edge for pc in pieces]).astype(float)
+    # a piece's junction goes to the first device, in this order, that uses it (side a before b)
+    seq = np.stack([a, b], axis=1).ravel()
+    owner = np.zeros(len(seq), bool)
+    owner[np.unique(seq, return_index=True)[1]] = True
+    own_a, own_b = owner[0::2], owner[1::2]
+    cols = {
+        "type": t, "gate": gate, "a": net_of[a], "b": net_of[b], "w": w, "l": l,
+        "x": points[order, 0], "y": points[order, 1],
+        "area_a": np.where(own_a, piece_area[a], 0.0), "perim_a": np.where(own_a, piece_field[a] + edge_a, edge_a),
+        "area_b": np.where(own_b, piece_area[b], 0.0), "perim_b": np.where(own_b, piece_field[b] + edge_b, edge_b),
+    }
+    # gate and overlap on the gate, overlap on each side, summed device by
+    # device (column 5 in the order gate, a, b)
+    on_gate, overlap, per_side = np.empty(len(t)), np.empty(len(t)), np.empty(len(t))
+    for name in dict.fromkeys(t.tolist()):
+        mask = t == name
+        g = gate_parts(tech.mos[name], w[mask], l[mask])
+        on_gate[mask], overlap[mask] = g.gate, g.overlap
+        per_side[mask] = overlap_per_side(tech.mos[name], w[mask]).overlap
+    np.add.at(cap[:, 4], gate, on_gate)
+    np.add.at(cap[:, 5], np.stack([gate, cols["a"], cols["b"]], axis=1).ravel(),
+              np.stack([overlap, per_side, per_side], axis=1).ravel())
+    return {k: np.asarray(cols[k], dtype=types.get(k, float)) for k in keys}

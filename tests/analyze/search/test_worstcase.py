@@ -104,6 +104,28 @@ def test_search_matches_brute_force(case):
     _agrees_with_brute_force(*case)
 
 
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(sp_stages())
+def test_below_asks_whether_the_worst_case_is_below_a_bar(case):
+    # worst_case(below=bar) finds a pattern below the bar exactly when the
+    # brute-force worst case (sharing_circuits.brute_force) is below it;
+    # bars 1 µV either side of the reference worst case
+    circuit, stage, constraints = case
+    _, best = brute_force(circuit, stage, TECH, constraints)
+    model = build_model(circuit, stage, TECH)
+    choices = bind_blocks(model, stage_blocks(constraints, model.inputs))
+    for method in ("bound", "brute"):
+        if best is None:
+            assert worst_case(model, choices, method=method, below=10.0) is None
+            continue
+        (u_ref, _), _ = best
+        assert worst_case(model, choices, method=method, below=u_ref - 1e-6) is None, method
+        found = worst_case(model, choices, method=method, below=u_ref + 1e-6)
+        assert found is not None, method
+        assert round(found.u_final, 9) < round(u_ref + 1e-6, 9)
+        assert found.u_final >= u_ref - 2e-9  # no pattern ends below the worst case
+
+
 # -- stacks with precharged middle nodes (the topology matters) --------------------
 @st.composite
 def precharged_stacks(draw):

@@ -168,3 +168,42 @@ def test_reader_uses_the_check(tmp_path, small):
     path.write_bytes(bytes(data))
     with pytest.raises(InputError, match=r"record \d+ \(byte \d+\)"):
         open_layout(str(path))
+
+
+@pytest.fixture(scope="module")
+def plain(tmp_path_factory):
+    # many plain boundaries and texts, as a flat layout has (gdstk's writer
+    # adds PRESENTATION to a text only when it is not the default anchor)
+    lib = gdstk.Library(unit=1e-6, precision=1e-9)
+    top = lib.new_cell("TOP")
+    for k in range(20):
+        top.add(gdstk.rectangle((k, 0), (k + 0.5, 1), layer=1))
+        top.add(gdstk.Label(f"L{k}", (k, 0.5), layer=2, anchor="o" if k % 2 else "sw"))
+    path = tmp_path_factory.mktemp("p") / "plain.gds"
+    lib.write_gds(str(path))
+    return path.read_bytes()
+
+
+def test_plain_elements_are_counted_record_by_record(plain):
+    # the record numbers of a refusal after many plain elements are those of
+    # this test's own walk (records counted from 1); the same places broken
+    # in three ways: a 2-point boundary, a text of 2 points, an odd STRING
+    recs = records(plain)
+    assert check_gds_grammar("p.gds", plain).records == len(recs)
+    assert any(t == CODE["PRESENTATION"] for _, _, t in recs)
+    xys = [i for i, r in enumerate(recs) if r[2] == CODE["XY"]]
+    i = xys[15]  # past several plain elements of both kinds
+    pos, length, _ = recs[i]
+    kind = next(RECORD_NAMES[t] for _, _, t in reversed(recs[:i]) if t in (CODE["BOUNDARY"], CODE["TEXT"]))
+    bad = plain[:pos] + rec("XY", struct.pack(">4i", 0, 0, 1, 1), 3) + plain[pos + length :]
+    refused(bad, f"record {i + 1} (byte {pos})", f"XY of a {kind} holds 2 points")
+    s = next(i for i, r in enumerate(recs) if r[2] == CODE["STRING"] and i > 30)
+    pos, length, _ = recs[s]
+    bad = plain[:pos] + struct.pack(">HBB", 7, CODE["STRING"], 6) + b"abc" + plain[pos + length :]
+    refused(bad, f"record {s + 1} (byte {pos})", "corrupt GDSII record (length 7)")
+
+
+def test_a_plain_element_cut_short_is_truncation(plain):
+    recs = records(plain)
+    pos = recs[next(i for i, r in enumerate(recs) if r[2] == CODE["ENDEL"] and i > 40)][0]
+    refused(plain[:pos], "truncated GDSII file (no ENDLIB record)", f"(byte {pos})")

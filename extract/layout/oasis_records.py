@@ -41,10 +41,11 @@ and returns what it has so far (the rest of the file silently lost).
 from __future__ import annotations
 
 import re
+import sys
 import zlib
 
 from extract.layout.oasis_memory import COPY_TABLES, Copies, circle_vertices
-from extract.layout.oasis_types import (INT_RUNS, FieldError, read_real, read_repetition, read_string, read_uint,
+from extract.layout.oasis_types import (INT, INT_RUNS, FieldError, read_real, read_repetition, read_string, read_uint,
                                         skip_ints, skip_point_list, skip_property_values)
 
 __all__ = ["RECORD_NAMES", "MAX_CBLOCK_BYTES", "RecordWalk"]
@@ -70,6 +71,24 @@ _BITS = [bin(i).count("1") for i in range(256)]
 _TABLES = ("CELLNAME", "TEXTSTRING", "PROPNAME", "PROPSTRING", "XNAME")
 _PADS = re.compile(rb"\x00+")
 _TRIVIAL = re.compile(rb"[\x00\x0f\x10]+")  # PAD, XYABSOLUTE, XYRELATIVE: records without fields
+
+
+def _rectangles() -> tuple[re.Pattern, re.Pattern]:
+    """One RECTANGLE without repetition, and a run of them: an info byte
+    with R clear and not both S and H, then as many integers as it has
+    bits among W H X Y D L (the most common count first)."""
+    by_count: dict[int, list[int]] = {}
+    for info in range(256):
+        if not info & 0x04 and info & 0xA0 != 0xA0:
+            by_count.setdefault(_BITS[info & 0x7B], []).append(info)
+    one = rb"\x14(?:" + rb"|".join(rb"[%s](?:%s){%d}" % (re.escape(bytes(by_count[k])), INT, k)
+                                  for k in sorted(by_count, reverse=True)) + rb")"
+    possessive = b"+" if sys.version_info >= (3, 11) else b""  # no backtracking state: four times faster
+    return re.compile(one, re.S), re.compile(rb"(?:%s)+%s" % (one, possessive), re.S)
+
+
+_RECTANGLE, _RECTANGLES = _rectangles()
+_RECTANGLE_MODAL = LAYER | DTYPE | GW | GH
 
 
 def _unsupported(rid):
@@ -158,12 +177,34 @@ class RecordWalk:
                 p = self._cblock(buf, p + 1, rid)
                 index, free = self.index, self.free
                 continue
+            if rid == 20 and self.defined & _RECTANGLE_MODAL == _RECTANGLE_MODAL and self.in_cell:
+                # a run of rectangles needing nothing new: matched in C, counted by subn
+                end = _RECTANGLES.match(buf, p)
+                if end is not None:
+                    end = end.end()
+                    run = _RECTANGLE.subn(b"", buf[p:end])[1]
+                    if index - free + run - 1 > limit:
+                        self._too_many(buf, p, index, free)
+                    index += run - 1
+                    self.attach, p = None, end
+                    continue
             if index - free > limit:
-                raise FieldError(f"more than {limit:,} elements, properties and names (gdstk holds every one in "
-                                 "memory; set DYNSHARE_MAX_SHAPES)")
+                self._too_many(buf, p, index, free)
             p = handlers[rid](buf, p + 1, rid)
         self.index, self.free, self.cblock = index, free, saved
         return n
+
+    def _too_many(self, buf, p, index, free):
+        """Raise at the record that passes the element limit (inside a run
+        of rectangles from ``p`` when there is one)."""
+        over = self.limit - (index - free) + 2  # the record of the run from p that passes the limit
+        if over > 1:
+            for k, m in enumerate(_RECTANGLE.finditer(buf, p), 1):
+                if k == over:
+                    self.index, self.start = index + k - 1, m.start()
+                    break
+        raise FieldError(f"more than {self.limit:,} elements, properties and names (gdstk holds every one in "
+                         "memory; set DYNSHARE_MAX_SHAPES)")
 
     # -- shared checks ---------------------------------------------------------
     def _unknown(self, buf, p, rid):

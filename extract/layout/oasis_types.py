@@ -39,7 +39,7 @@ import math
 import re
 import struct
 
-__all__ = ["FieldError", "MAX_INT_BYTES", "INT_RUNS", "read_uint", "read_sint", "skip_ints", "read_real",
+__all__ = ["FieldError", "MAX_INT_BYTES", "INT", "INT_RUNS", "read_uint", "read_sint", "skip_ints", "read_real",
            "read_real_body", "read_string", "skip_point_list", "read_repetition", "skip_property_values"]
 
 #: Longest integer accepted, in bytes (9 x 7 = 63 bits).
@@ -52,6 +52,8 @@ class FieldError(ValueError):
 
 _INT = re.compile(rb"[\x80-\xff]{0,%d}[\x00-\x7f]" % (MAX_INT_BYTES - 1), re.S)
 _V = rb"[\x80-\xff]{0,%d}[\x00-\x7f]" % (MAX_INT_BYTES - 1)
+#: A regular expression (bytes) matching one integer.
+INT = _V
 _EVEN, _ODD = re.escape(bytes(range(0, 256, 2))), re.escape(bytes(range(1, 256, 2)))
 #: one g-delta: an integer with bit 0 clear, or two with bit 0 of the first set
 _G = rb"(?:(?=[%s])%s|(?=[%s])%s%s)" % (_EVEN, _V, _ODD, _V, _V)

@@ -220,3 +220,24 @@ def test_label_conflict_warns(tmp_path, tech):
     c = extract_layout(write(tmp_path, "c.gds", cell), tech)
     assert "DYN" in c.nets and "X" not in c.nets  # 'DYN' sorts before 'X'
     assert any("'DYN', 'X'" in f.message for f in c.findings)
+
+
+def test_labels_snap_to_the_grid_without_negative_zero(tmp_path, tech):
+    # Hand calculation: the database unit is 1 nm = 0.001 µm; a label drawn
+    # at (-0.001, 0.004) µm in a cell placed with magnification 0.4 lands at
+    # (-0.0004, 0.0016) µm = (-0.4, 1.6) units, which round to (0, 2) units
+    # = (0.0, 0.002) µm; 0 units is +0.0 µm, not -0.0, so a finding at it
+    # prints "(0.0, 0.002)"
+    from drawing import library
+    from extract.layout.reader import read_layout
+
+    child = gdstk.Cell("C")
+    label(child, "STRAY", -0.001, 0.004, layer=POLY)
+    top = gdstk.Cell("T")
+    top.add(gdstk.Reference(child, (0, 0), magnification=0.4))
+    path = str(tmp_path / "s.gds")
+    library(top, child).write_gds(path)
+    flat = read_layout(path, "T")
+    (lab,) = flat.labels
+    assert (lab.x, lab.y) == (0.0, 0.002)
+    assert math.copysign(1.0, lab.x) == 1.0

@@ -17,7 +17,9 @@ MAGIC = b"%SEMI-OASIS\r\n"
 
 
 def uint(v: int) -> bytes:
-    """>>> uint(150).hex()
+    """An unsigned integer, 7 bits a byte, low group first.
+
+    >>> uint(150).hex()
     '9601'
     """
     out = bytearray()

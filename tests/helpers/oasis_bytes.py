@@ -17,7 +17,7 @@ MAGIC = b"%SEMI-OASIS\r\n"
 
 
 def uint(v: int) -> bytes:
-    """An OASIS field, as bytes.
+    """An unsigned integer, 7 bits a byte, low group first.
 
     >>> uint(150).hex()
     '9601'

@@ -26,8 +26,11 @@ Conservation: Σ Q_final(V) over the joined nodes equals Σ Q_initial(V0)
 with every device's gate at its level before and after evaluation.  The
 joined nodes end at one voltage; an internal node of an n-type stage cannot
 rise above the nmos pass limit V_lim = VDD − VT(V_lim) (p-type: the mirror),
-and where the equalised voltage would pass it the internal nodes stop there
-and the dynamic node keeps the rest.
+and where the equalised voltage would pass it the internal nodes stop near
+it — each where the measured subthreshold currents through the stack take it
+within ``evaluation_ns`` (:func:`_creep_network`) — and the dynamic node
+keeps the rest.  Internal nodes that start precharged share among themselves
+first.
 
 Notes
 -----
@@ -209,7 +212,7 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
 
 
 def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict,
-                               passes=(), links=()) -> float:
+                               links=()) -> float:
     """The dynamic node's final voltage with the models' device charges.
 
     Parameters
@@ -221,15 +224,12 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
     levels : GateLevels
     start : dict of str to float
         Each node's voltage before evaluation.
-    passes : iterable of str
-        The conducting devices between the dynamic node and the internal
-        nodes; past the pass limit, their subthreshold current (from the
-        tables) keeps charging the internal nodes until ``evaluation_ns``.
     links : iterable of (str, str, str)
         The conducting devices inside the group with their two channel
-        terminals; when given (and measured), the creep past the pass limit
-        is solved node by node through them (:func:`_creep_network`)
-        instead of through ``passes`` into one lumped internal node.
+        terminals (both in ``group``).  Past the pass limit their measured
+        currents keep charging the internal nodes until ``evaluation_ns``,
+        node by node (:func:`_creep_network`); without any, the internal
+        nodes stop at the pass limit.
 
     Returns
     -------
@@ -313,42 +313,17 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
         v_int0 = brentq(lambda v: sum(q_node(n, v, 1) for n in internal) - q_int, -margin, vdd + margin,
                         xtol=1e-7)
     links = [ln for ln in links if ln[0] in tables.currents]
-    if links and all(a in members and b in members for _, a, b in links):
-        v_from = v_lim - 0.3 if n_type else v_lim + 0.3
-        if v_int0 is not None:
-            v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
-        ends = _creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq,
-                              tech.evaluation_ns, margin)
-        rest = total - sum(q_node(n, ends[n], 1) for n in internal)
-        return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
-    currents = [tables.current(p) for p in passes if p in tables.currents]
-    v_end = v_lim if v_int0 is None else (max(v_lim, v_int0) if n_type else min(v_lim, v_int0))
-    if currents:
+    v_end = {n: v_lim if v_int0 is None else (max(v_lim, v_int0) if n_type else min(v_lim, v_int0))
+             for n in internal}
+    if links:
         # the fast phase up to a few hundred mV short of the pass limit takes
-        # no time worth counting; integrate from there
+        # no time worth counting; the creep is solved from there
         v_from = v_lim - 0.3 if n_type else v_lim + 0.3
         if v_int0 is not None:
             v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
-        v_end = _creep(lambda v: sum(q_node(n, v, 1) for n in internal), currents, v_x_near, v_eq,
-                       v_from, tech.evaluation_ns)
-    return v_x(v_end)
-
-
-def _creep(q_internal, currents, v_x, v_eq: float, v0: float, t_ns: float) -> float:
-    """Where the internal nodes are after ``t_ns``, charged through the pass
-    devices: t = ∫ C(V)/I(V, Vx(V)) dV from their start, C = dQ/dV of the
-    internal nodes, I the sum of the pass currents (µA) with the dynamic
-    node where conservation puts it; never past the equalised voltage.
-    fC / µA = 1 ns."""
-    grid = np.linspace(v0, v_eq, 160)
-    q = np.array([q_internal(v) for v in grid])
-    i = np.array([sum(f(v, v_x(v)) for f in currents) for v in grid])
-    dq = np.abs(np.diff(q))
-    i_mid = 0.5 * (i[1:] + i[:-1])
-    t = np.concatenate([[0.0], np.cumsum(dq / np.maximum(i_mid, 1e-15))])
-    if t[-1] <= t_ns:
-        return v_eq
-    return float(np.interp(t_ns, t, grid))
+        v_end = _creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns, margin)
+    rest = total - sum(q_node(n, v_end[n], 1) for n in internal)
+    return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
 
 
 def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float) -> dict:
@@ -361,8 +336,8 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     conducting device from its higher to its lower terminal (gate on; the
     current table's near terminal is the lower one).  A node deep in a stack
     is charged through several devices in series, each with little
-    drain–source voltage, so it lags the nodes above it: the lumped creep
-    of :func:`_creep` would fill it as fast as the top node.
+    drain–source voltage, so it lags the nodes above it (one lumped
+    internal node would fill as fast as the top node).
 
     Parameters
     ----------

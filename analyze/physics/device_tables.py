@@ -25,6 +25,11 @@ one stage, at the corner of the tech file's ``[models]``, with ngspice:
     node's lowest point comes before the output moves: its swing couples
     back through the gate–drain capacitance afterwards), and that switching
     point from a DC sweep: the input where the output equals it.
+``current(device)``
+    An evaluation device's channel current with its gate on, against its
+    near terminal and its drain–source voltage (a log-spaced grid from
+    2 mV, :data:`VDS_GRID`): what charges the internal nodes past the pass
+    limit.
 
 Charges are measured by integrating the current that a slow ramp draws
 (the models are quasi-static, so the ramp speed does not matter; a 1 fF
@@ -32,10 +37,12 @@ capacitor on a ramp of its own calibrates sign and integration).
 
 Notes
 -----
-One ngspice run per stage and corner: every distinct device and gate level
+A few ngspice runs per stage and corner (the charges, the currents, the
+clock edge), each with its models loaded once: every distinct device and gate level
 gets its own pair of sources and every receiver its own inverter, on one
 transient (gate ramp 0 -> level in 1 ns, then source/drain or input ramp
-0 -> VDD in 2 ns), plus one DC sweep for the switching points.
+0 -> VDD in 2 ns), plus one DC sweep for the switching points and one
+per drain–source voltage for the currents.
 Results are cached on disk (``$DYNSHARE_CACHE``) by the pruned model file,
 corner, VDD and the list of what is measured, so a second check measures
 nothing.
@@ -166,8 +173,8 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
         Device name -> the gate voltages its terminal charge is wanted at.
     corner : str, optional
     passes : iterable of str
-        Devices whose pass current is wanted (those between the dynamic
-        node and the internal nodes).
+        Devices whose channel current is wanted (the evaluation devices:
+        the creep past the pass limit runs through them).
     clock : dict, optional
         The dynamic node's surroundings for the clock-edge measurement:
         ``{"devices": [(name, role)], "cap_ff": float}`` with role

@@ -15,9 +15,9 @@ ranking heuristic, said in the result's note.
 
 Notes
 -----
-One ngspice run per stage (cached, :mod:`analyze.physics.device_tables`),
-then per candidate and case one root search over table lookups (about a
-millisecond).
+A few ngspice runs per stage (cached, :mod:`analyze.physics.device_tables`),
+then per distinct group, gate levels and case one charge-conservation solve
+(a root search, and past the pass limit a small stiff ODE: milliseconds).
 """
 
 from __future__ import annotations
@@ -65,14 +65,12 @@ class FoundryOutcome:
 class FoundryStage:
     """What the foundry-model solve of one stage prepares once
     (:func:`prepare_stage`): its table devices, measured tables, solver
-    context, the top evaluation devices (pass-current candidates) and the
-    receivers' switching point; ``solved`` remembers final voltages by
+    context and the receivers' switching point; ``solved`` remembers final voltages by
     what they depend on."""
 
     devices: list
     tables: object
     context: object
-    tops: list
     threshold_v: float
     corner: object
     solved: dict = field(default_factory=dict)
@@ -80,7 +78,7 @@ class FoundryStage:
 
 def prepare_stage(circuit, stage, tech) -> FoundryStage:
     """Measure (or read from the cache) the stage's device tables and
-    prepare the solver (one ngspice run per stage and corner, cached)."""
+    prepare the solver (a few ngspice runs per stage and corner, cached)."""
     vdd = float(tech.vdd)
     corner = tech.models.corners[0] if tech.models.corners else None
     tdevs = table_devices(circuit, stage)
@@ -88,7 +86,6 @@ def prepare_stage(circuit, stage, tech) -> FoundryStage:
     for d in tdevs:
         vt = abs(tech.mos[d.type].vt0)
         levels[d.name] = {0.0, vdd, vdd - vt, vt}
-    tops = [d.name for d in tdevs if d.name in stage.evaluation and stage.dynamic_node in (d.drain, d.source)]
     evaluation = [d.name for d in tdevs if d.name in stage.evaluation]
     tables = stage_tables(circuit, stage, tech, levels, corner, passes=evaluation,
                           clock=clock_setup(circuit, stage, tech, tdevs))
@@ -98,7 +95,7 @@ def prepare_stage(circuit, stage, tech) -> FoundryStage:
         threshold = max(vms) if stage.polarity == "n" else min(vms)
     else:
         threshold = 0.5 * vdd
-    return FoundryStage(tdevs, tables, ctx, tops, threshold, corner)
+    return FoundryStage(tdevs, tables, ctx, threshold, corner)
 
 
 def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, candidates, cases=None,
@@ -119,7 +116,6 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
         start = {n: (start_x if n in pre else start_int) for n in group}
         start[stage.dynamic_node] = start_x
         on = 1 if n_type else 0
-        passes = [p for p in prep.tops if wc.inputs.get(circuit.device(p).gate) == on]
         members = set(group)
         links = [(d.name, d.drain, d.source) for d in prep.devices
                  if d.name in stage.evaluation and wc.inputs.get(d.gate) == on
@@ -130,13 +126,12 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
             st = precharged_through(prep, stage, tech, wc.inputs, late, pre, start)
             # the result depends only on the group, its starts, the levels of
             # the devices on it and which of them conduct
-            key = (tuple(group), tuple(st[n] for n in group), tuple(passes), tuple(links),
+            key = (tuple(group), tuple(st[n] for n in group), tuple(links),
                    tuple((d.name, lv.before[d.name], lv.after[d.name]) for d in prep.devices
                          if d.drain in members or d.source in members))
             v = prep.solved.get(key)
             if v is None:
-                v = prep.solved[key] = final_voltage_with_devices(prep.context, group, lv, st, passes=passes,
-                                                                  links=links)
+                v = prep.solved[key] = final_voltage_with_devices(prep.context, group, lv, st, links=links)
             # the window opens with the node at its start: its extreme is never past it
             v = min(v, start_x) if n_type else max(v, start_x)
             if worst is None or (v < worst_v if n_type else v > worst_v):

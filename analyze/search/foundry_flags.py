@@ -99,8 +99,9 @@ def prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, thre
         chosen.append(Flag(node=best, action=action, v_final_after=worst_v(applied),
                            location_um=None if net is None else net.location_um, between=between))
     added = len(chosen) - len(flags)
-    return chosen, (f"flags proven with the foundry models (every candidate pattern and arrival case); "
-                    f"{added} added to the lumped model's {len(flags)} by the models")
+    how = (f"{added} added to the lumped model's {len(flags)} by the models" if flags else
+           "chosen by the models: the lumped model passes the stage")
+    return chosen, f"flags proven with the foundry models (every candidate pattern and arrival case); {how}"
 
 
 def _with_v(flag: Flag, v: float) -> Flag:

@@ -23,7 +23,7 @@ from extract.errors import Finding
 from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Side, Topology
 
-__all__ = ["Candidate", "ClockInference", "find_candidates", "infer_clocks"]
+__all__ = ["Candidate", "ClockInference", "find_candidates", "infer_clocks", "decide_clocks"]
 
 
 @dataclass(frozen=True)
@@ -242,11 +242,48 @@ def infer_clocks(
     """
     if candidates is None:
         candidates = find_candidates(topo, static)
-    reasons = {n: "from tech file" for n in _declared(topo)}
+
+    def locate(node: str, gate: str, device: str):
+        i = next(j for j in topo.gates[gate] if topo.devices[j].name == device)
+        return topo.location(node, i)
+
+    return decide_clocks(candidates, _declared(topo), lambda n: bool(topo.gates.get(n)), topo.receivers, locate)
+
+
+def decide_clocks(candidates: list[Candidate], declared: list[str], drives_gate, receivers, locate) -> ClockInference:
+    """The rules of :func:`infer_clocks`, given what they read of the circuit.
+
+    Parameters
+    ----------
+    candidates : list of Candidate
+        Every candidate of the circuit, sorted by node, polarity and gate.
+    declared : list of str
+        Nets whose role is ``"clock"``, sorted.
+    drives_gate : callable
+        ``drives_gate(net)``: True when ``net`` gates some device.
+    receivers : callable
+        ``receivers(net)``: the static inverters whose input is ``net``
+        (:meth:`analyze.stages.topology.Topology.receivers`).
+    locate : callable
+        ``locate(node, gate, device)``: the location of the finding on an
+        unexplained candidate (the device ``device`` gated by ``gate``).
+
+    Returns
+    -------
+    ClockInference
+
+    Notes
+    -----
+    :func:`infer_clocks` calls it with a :class:`Topology`; recognition
+    by islands (:mod:`analyze.stages.islands`) with the candidates of
+    every island renamed back, so that this one global decision sees the
+    whole circuit either way.
+    """
+    reasons = {n: "from tech file" for n in declared}
     declared = set(reasons)
     # Name a node that drives a gate (a dynamic node rather than an internal
     # node with a secondary precharge device) in the reason when there is one.
-    for c in sorted(candidates, key=lambda c: (not topo.gates.get(c.node), c.node)):
+    for c in sorted(candidates, key=lambda c: (not drives_gate(c.node), c.node)):
         if c.footers and c.gate not in reasons:
             reasons[c.gate] = (
                 f"gates {c.side.precharge_word} {c.precharge[0]} and "
@@ -255,7 +292,7 @@ def infer_clocks(
     changed = True
     while changed:
         changed = False
-        inverted = {r.output: k for k in sorted(reasons) for r in topo.receivers(k)}
+        inverted = {r.output: k for k in sorted(reasons) for r in receivers(k)}
         for c in candidates:
             if c.gate not in reasons and c.gate in inverted:
                 reasons[c.gate] = f"complement of clock {inverted[c.gate]}"
@@ -280,13 +317,12 @@ def infer_clocks(
         left = unexplained()
     findings = []
     for c in left:
-        i = next(j for j in topo.gates[c.gate] if topo.devices[j].name == c.precharge[0])
         findings.append(
             Finding(
                 f"{c.precharge[0]} looks like a {c.side.precharge_word} device of "
                 f"{c.node} but its gate {c.gate} is not a known clock "
                 f"(declare it in the tech file's [nets] clock)",
-                topo.location(c.node, i),
+                locate(c.node, c.gate, c.precharge[0]),
             )
         )
     return ClockInference(

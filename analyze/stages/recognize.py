@@ -23,7 +23,10 @@ from analyze.stages.stage import Stage
 from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Side, Topology
 
-__all__ = ["Recognition", "find_stages"]
+__all__ = ["Recognition", "find_stages", "ISLANDS_FROM"]
+
+#: Circuits of at least this many devices are recognised by islands when they repeat.
+ISLANDS_FROM = 2000
 
 
 @dataclass
@@ -51,7 +54,7 @@ class Recognition:
     clock_note: str = ""
 
 
-def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
+def find_stages(circuit: Circuit, tech: Tech, islands: bool | None = None) -> Recognition:
     """Recognise the dynamic stages of a circuit.
 
     Parameters
@@ -60,11 +63,19 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
         Net roles are taken from ``circuit.nets[...].role``, falling back
         to the tech file's ``[nets]`` for nets listed as ``"signal"``.
     tech : Tech
+    islands : bool, optional
+        Recognise once per distinct island (:mod:`analyze.stages.islands`)
+        and rename the results back; by default when the circuit has at
+        least ``ISLANDS_FROM`` devices and the islands repeat (the
+        largest island times the number of distinct ones is at most half
+        the devices).  The result is the same either way.
 
     Returns
     -------
     Recognition
         A cell without dynamic stages gives no stages and no error.
+        Findings: those of the clock inference, then those of n-type and
+        of p-type stages, each sorted by text.
 
     Notes
     -----
@@ -123,20 +134,28 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
     >>> r.clock_note
     'clock CLK from tech file'
     """
+    if islands is None or islands:
+        from analyze.stages.islands import circuit_islands
+
+        isl = circuit_islands(circuit, tech) if islands or len(circuit.devices) >= ISLANDS_FROM else None
+        if isl is not None and (islands or isl.largest() * len(isl.keys) <= len(circuit.devices) // 2):
+            from analyze.stages.by_islands import find_stages_by_islands
+
+            return find_stages_by_islands(isl, tech)
     topo = Topology(circuit, tech)
     static = StaticNets(topo)
     inference = infer_clocks(topo, static=static)
     clocks = set(inference.clocks)
     stages: list[Stage] = []
-    findings = list(inference.findings)
+    findings = []
     for side in SIDES:
         found, notes = _side_stages(topo, side, clocks, static)
         stages += found
-        findings += notes
+        findings += sorted(notes, key=Finding.text)
     stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
     return Recognition(
         stages=stages,
-        findings=findings,
+        findings=list(inference.findings) + findings,
         clocks=inference.clocks,
         clock_inferred=inference.inferred,
         clock_note=inference.note,
@@ -146,8 +165,9 @@ def find_stages(circuit: Circuit, tech: Tech) -> Recognition:
 class _SideContext:
     """Clocked devices of one polarity, shared by the steps below."""
 
-    def __init__(self, topo: Topology, side: Side, clocks: set[str], static: StaticNets):
+    def __init__(self, topo: Topology, side: Side, clocks: set[str], static: StaticNets, locate=None):
         self.topo, self.side, self.clocks = topo, side, clocks
+        self.locate = locate or topo.location
         devs = topo.devices
         self.footers: set[int] = set()
         self.footer_nodes: set[str] = set()
@@ -173,7 +193,7 @@ class _SideContext:
         return min(ends, default=float("inf"))
 
     def finding(self, message: str, net: str, device: int | None = None) -> Finding:
-        return Finding(message, self.topo.location(net, device))
+        return Finding(message, self.locate(net, device))
 
 
 def _dynamic_nodes(ctx: _SideContext) -> list[str]:
@@ -200,8 +220,8 @@ def _dynamic_nodes(ctx: _SideContext) -> list[str]:
     return sorted(dynamic)
 
 
-def _side_stages(topo: Topology, side: Side, clocks: set[str], static: StaticNets):
-    ctx = _SideContext(topo, side, clocks, static)
+def _side_stages(topo: Topology, side: Side, clocks: set[str], static: StaticNets, locate=None):
+    ctx = _SideContext(topo, side, clocks, static, locate)
     stages: list[Stage] = []
     findings: list[Finding] = []
     for x, pre in sorted(ctx.precharged.items()):

@@ -16,7 +16,7 @@ from pathlib import Path
 from extract.circuit import Circuit, Device, Net
 from extract.tech import MosParams, NetRoles, Tech
 
-__all__ = ["dsk18_tech", "make_circuit", "inverter", "TECH", "NO_CLOCK", "NAND3_FOOTED"]
+__all__ = ["dsk18_tech", "make_circuit", "inverter", "TECH", "NO_CLOCK", "NAND3_FOOTED", "recognised_both_ways"]
 
 DSK18 = Path(__file__).resolve().parents[2] / "sample_layouts" / "dsk18.toml"
 
@@ -73,3 +73,18 @@ NAND3_FOOTED = [
     ("MC", "nmos", "n2", "C", "n3", 1.5, 0.18),
     ("MF", "nmos", "n3", "CLK", "VSS", 2.0, 0.18),
 ] + inverter("MI", "X", "OUT")
+
+
+def recognised_both_ways(circuit: Circuit, tech: Tech):
+    """``find_stages`` on the whole circuit and by islands
+    (:mod:`analyze.stages.islands`); asserts that they agree in every
+    field and finding (text and place) and returns the whole-circuit one."""
+    from analyze.stages.recognize import find_stages
+
+    whole = find_stages(circuit, tech, islands=False)
+    parts = find_stages(circuit, tech, islands=True)
+    assert parts.stages == whole.stages
+    assert [(f.message, f.location_um) for f in parts.findings] == [(f.message, f.location_um) for f in whole.findings]
+    assert (parts.clocks, parts.clock_inferred, parts.clock_note) == (whole.clocks, whole.clock_inferred,
+                                                                      whole.clock_note)
+    return whole

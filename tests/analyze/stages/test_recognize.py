@@ -25,11 +25,13 @@ from extract.tech import Tech
 from analyze.stages.recognize import Recognition, find_stages
 from analyze.stages.stage import Receiver
 
-from stage_circuits import NAND3_FOOTED, NO_CLOCK, TECH, dsk18_tech, inverter, make_circuit
+from stage_circuits import NAND3_FOOTED, NO_CLOCK, TECH, dsk18_tech, inverter, make_circuit, recognised_both_ways
 
 
 def recognise(rows, tech: Tech = TECH) -> Recognition:
-    return find_stages(make_circuit(rows, tech), tech)
+    # Every hand-built circuit is recognised both on the whole circuit and
+    # by islands; the two must agree (recognised_both_ways asserts it).
+    return recognised_both_ways(make_circuit(rows, tech), tech)
 
 
 def test_footed_nand3_keeper_and_inverter():
@@ -652,7 +654,7 @@ def test_random_circuits_respect_the_stage_definition(rows, declared):
     # and internal nodes that are neither X, nor a rail, nor the footer node.
     tech = TECH if declared else NO_CLOCK
     c = make_circuit([(f"M{k}", t, d, g, s, 1.0, 0.18) for k, (t, d, g, s) in enumerate(rows)], tech)
-    r = find_stages(c, tech)
+    r = recognised_both_ways(c, tech)
     assert [s.dynamic_node for s in r.stages] == sorted(s.dynamic_node for s in r.stages)
     for s in r.stages:
         ev, pull = ("nmos", "pmos") if s.polarity == "n" else ("pmos", "nmos")

@@ -1,0 +1,171 @@
+"""Stage recognition once per distinct island, renamed back.
+
+:func:`find_stages_by_islands` gives what
+:func:`analyze.stages.recognize.find_stages` gives on the whole circuit,
+doing the work of each step once per distinct island key
+(:mod:`analyze.stages.islands`):
+
+1. candidates (:func:`analyze.stages.clocks.find_candidates`) on each
+   distinct island's placeholder circuit, renamed to every island with
+   that key and sorted as on the whole circuit (unless every candidate is
+   gated by a declared clock: the decision then reads none of them);
+2. the clock decision (:func:`analyze.stages.clocks.decide_clocks`) once,
+   over all of them; the receivers of a clock are gathered from the
+   islands that hold it (a receiver's two devices share their output,
+   which is no shared net, so they lie in one island);
+3. the stages and findings of both polarities on each distinct pair of
+   (key, which of the island's nets are clocks), renamed to every island
+   with that pair.  An island with no clock net has neither: every stage
+   and every finding of that step starts from a clocked device.
+
+Locations are read from the real circuit (a device's, else its net's),
+as the whole-circuit recognition reads them.
+"""
+
+from __future__ import annotations
+
+from extract.errors import Finding
+
+from analyze.stages.clocks import Candidate, decide_clocks, find_candidates
+from analyze.stages.islands import Islands
+from analyze.stages.recognize import Recognition, _side_stages
+from analyze.stages.stage import Receiver, Stage
+from analyze.stages.static import StaticNets
+from analyze.stages.topology import SIDES, Topology
+
+__all__ = ["find_stages_by_islands"]
+
+
+def _place(net, device):
+    """A finding's place in a placeholder circuit, located once renamed."""
+    return ("@", net, device)
+
+
+def find_stages_by_islands(isl: Islands, tech) -> Recognition:
+    """Recognise the stages of ``isl.circuit`` once per distinct island.
+
+    Parameters
+    ----------
+    isl : Islands
+        From :func:`analyze.stages.islands.circuit_islands`.
+    tech : Tech
+
+    Returns
+    -------
+    Recognition
+        Equal to ``find_stages(isl.circuit, tech, islands=False)``.
+
+    Notes
+    -----
+    Cost: one recognition per distinct key (and per distinct clock set of
+    a key), plus renaming every island's candidates, stages and findings.
+    """
+    circuit = isl.circuit
+    subs: dict[int, tuple] = {}
+
+    def sub(k: int):
+        got = subs.get(k)
+        if got is None:
+            topo = Topology(isl.placeholder(k), tech)
+            static = StaticNets(topo)
+            got = subs[k] = (topo, static, find_candidates(topo, static))
+        return got
+
+    candidates = []
+    key_of = isl.key_of.tolist()
+    for k in range(len(isl.keys)):
+        sub(k)
+    # When every candidate is gated by a declared clock, the clock decision
+    # reads none of them (each rule only adds clocks for undeclared gates):
+    # they need not be renamed.
+    needed = any(subs[k][0].role(c.gate) != "clock" for k in subs for c in subs[k][2])
+    for i, k in enumerate(key_of if needed else ()):
+        found = sub(k)[2]
+        if found:
+            rn = isl.renamer(i)
+            candidates += [Candidate(c.side, rn(c.node), rn(c.gate), tuple(map(rn, c.precharge)),
+                                     tuple(map(rn, c.footers))) for c in found]
+    candidates.sort(key=lambda c: (c.node, c.side.polarity, c.gate))
+    declared = sorted(n for n, r in isl.roles.items()
+                      if r == "clock" and (n in circuit.nets or isl.drives_gate(n)))
+    seen_receivers: dict[str, list[Receiver]] = {}
+
+    def receivers(net: str) -> list[Receiver]:
+        got = seen_receivers.get(net)
+        if got is None:
+            got = []
+            for i in isl.islands_with(net):
+                topo = sub(key_of[i])[0]
+                rn = isl.renamer(i)
+                got += [Receiver(rn(r.nmos), rn(r.pmos), rn(r.output))
+                        for r in topo.receivers(f"~N{isl.rank(i, net):07d}")]
+            got = seen_receivers[net] = sorted(got, key=lambda r: r.output)
+        return got
+
+    def locate(node, gate, device):
+        return _location(circuit, node, device)
+
+    inference = decide_clocks(candidates, declared, isl.drives_gate, receivers, locate)
+    clock_ranks: dict[int, list[int]] = {}
+    for c in inference.clocks:
+        for i in isl.islands_with(c):
+            clock_ranks.setdefault(i, []).append(isl.rank(i, c))
+    built: dict[tuple, tuple] = {}
+    stages: list[Stage] = []
+    findings: dict[str, list[Finding]] = {s.polarity: [] for s in SIDES}
+    for i in sorted(clock_ranks):
+        pair = (key_of[i], tuple(sorted(set(clock_ranks[i]))))
+        got = built.get(pair)
+        if got is None:
+            topo, static, _ = sub(pair[0])
+            clocks = {f"~N{r:07d}" for r in pair[1]}
+            got = built[pair] = tuple(_side_stages(topo, side, clocks, static, _place) for side in SIDES)
+        rn = isl.renamer(i)
+        for side, (found, notes) in zip(SIDES, got):
+            topo = subs[pair[0]][0]
+            stages += [_renamed_stage(s, rn, circuit) for s in found]
+            findings[side.polarity] += [_renamed_finding(f, rn, topo, circuit) for f in notes]
+    stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
+    notes = list(inference.findings)
+    for side in SIDES:
+        notes += sorted(findings[side.polarity], key=Finding.text)
+    return Recognition(stages=stages, findings=notes, clocks=inference.clocks,
+                       clock_inferred=inference.inferred, clock_note=inference.note)
+
+
+def _location(circuit, net: str | None, device: str | None):
+    """Where the whole-circuit recognition would place it: the device's
+    location, else the net's (:meth:`Topology.location`)."""
+    if device is not None:
+        loc = circuit.device(device).location_um
+        if loc is not None:
+            return loc
+    n = circuit.nets.get(net) if net is not None else None
+    return n.location_um if n is not None else None
+
+
+def _renamed_finding(f: Finding, rn, topo: Topology, circuit) -> Finding:
+    _, net, device = f.location_um
+    dname = rn(topo.devices[device].name) if device is not None else None
+    return Finding(rn(f.message), _location(circuit, rn(net), dname))
+
+
+def _renamed_stage(s: Stage, rn, circuit) -> Stage:
+    names = lambda xs: tuple(map(rn, xs))  # noqa: E731
+    return Stage(
+        dynamic_node=rn(s.dynamic_node),
+        polarity=s.polarity,
+        clock=rn(s.clock),
+        supply=rn(s.supply),
+        rail=rn(s.rail),
+        precharge=names(s.precharge),
+        evaluation=names(s.evaluation),
+        footer=rn(s.footer),
+        footer_node=rn(s.footer_node),
+        inputs=names(s.inputs),
+        internal_nodes=names(s.internal_nodes),
+        keepers=names(s.keepers),
+        receivers=tuple(Receiver(rn(r.nmos), rn(r.pmos), rn(r.output)) for r in s.receivers),
+        secondary_precharge={rn(k): rn(v) for k, v in s.secondary_precharge.items()},
+        location_um=_location(circuit, rn(s.dynamic_node), None),
+    )

@@ -112,6 +112,8 @@ def stage_block(result, circuit: Circuit, tech) -> str:
             between = f" between {' and '.join(f.between)}" if f.between else ""
             where = "" if f.location_um is None else f" {fmt_loc(f.location_um)}"
             out.append(f"    {f.node:<8}{where}{between}  -> worst case {f.v_final_after:.3f} V")
+        if result.flag_note:  # how the flags were chosen or proven
+            out.append(f"    ({result.flag_note})")
     elif result.flag_note:
         out.append(f"  fix: {result.flag_note}")
     if result.simulation:

@@ -201,5 +201,9 @@ def test_greedy_fallback_matches_brute_force_greedy(case):
         u, discharged = _worst(circuit, stage, chosen)
     assert {f.node for f in res.flags} == set(chosen)
     assert "greedily" in res.flag_note
+    # The terminal report says so beside the flags (not only the JSON).
+    from analyze.report.text import stage_block
+
+    assert f"({res.flag_note})" in stage_block(res, circuit, TECH)
     ref = _reference_order(circuit, stage, chosen)
     assert [f.node for f in res.flags] == [n for n, _ in ref]

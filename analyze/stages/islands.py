@@ -289,10 +289,13 @@ def circuit_islands(circuit: Circuit, tech: Tech) -> Islands:
             first.append(i)
         key_of[i] = j
     pair_net = upair % max(m, 1)
+    by_net = np.argsort(pair_net, kind="stable")  # island order kept within a net
+    sorted_net = pair_net[by_net]
 
     def islands_of(net_id: int) -> list[int]:
-        hits = np.flatnonzero(pair_net == net_rank[net_id])
-        return pair_island[hits].tolist()
+        r = net_rank[net_id]
+        lo, hi = np.searchsorted(sorted_net, [r, r + 1])
+        return pair_island[by_net[lo:hi]].tolist()
 
     parts = (net_start, net_names, net_roles, dev_start, by_island, rows, dev_sorted, ids, islands_of, is_gate)
     return Islands(circuit, keys, key_of, first, roles, parts)

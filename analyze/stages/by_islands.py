@@ -28,8 +28,8 @@ from extract.errors import Finding
 
 from analyze.stages.clocks import Candidate, decide_clocks, find_candidates
 from analyze.stages.islands import Islands
-from analyze.stages.recognize import Recognition, _side_stages
-from analyze.stages.stage import Receiver, Stage
+from analyze.stages.side_stages import side_stages
+from analyze.stages.stage import Receiver, Recognition, Stage
 from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Topology
 
@@ -119,7 +119,7 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
         if got is None:
             topo, static, _ = sub(pair[0])
             clocks = {f"~N{r:07d}" for r in pair[1]}
-            got = built[pair] = tuple(_side_stages(topo, side, clocks, static, _place) for side in SIDES)
+            got = built[pair] = tuple(side_stages(topo, side, clocks, static, _place) for side in SIDES)
         rn = isl.renamer(i)
         for side, (found, notes) in zip(SIDES, got):
             topo = subs[pair[0]][0]

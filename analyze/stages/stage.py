@@ -9,7 +9,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-__all__ = ["Receiver", "Stage"]
+from extract.errors import Finding
+
+__all__ = ["Receiver", "Stage", "Recognition"]
 
 
 @dataclass(frozen=True)
@@ -84,3 +86,28 @@ class Stage:
     @property
     def footed(self) -> bool:
         return self.footer is not None
+
+
+@dataclass
+class Recognition:
+    """What :func:`analyze.stages.recognize.find_stages` found.
+
+    Attributes
+    ----------
+    stages : list of Stage
+        Sorted by dynamic node (then polarity).
+    findings : list of Finding
+        Half-recognised structures.
+    clocks : list of str
+        Clock nets, declared and inferred, sorted.
+    clock_inferred : bool
+        True when some clock was not declared in the tech file.
+    clock_note : str
+        Where each clock came from, e.g. ``"clock CLK from tech file"``.
+    """
+
+    stages: list[Stage] = field(default_factory=list)
+    findings: list[Finding] = field(default_factory=list)
+    clocks: list[str] = field(default_factory=list)
+    clock_inferred: bool = False
+    clock_note: str = ""

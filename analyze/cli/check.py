@@ -82,12 +82,14 @@ def _check(args, tech, constraints) -> int:
     from analyze.cli.inputs import open_cells
     from analyze.cli.progress import Steps
 
-    with Steps() as steps:
+    notes = []  # printed with the warnings, once the outputs are written
+    with Steps() as steps, _cluster(args, tech, steps, notes) as solve:
         with steps.step(f"reading, flattening and extracting {args.layout}"):
             circuit = open_cells(args.layout, tech).circuit(args.cell)
         settled()
         recognition, results = analyse_circuit(circuit, tech, constraints, args.constraints,
-                                               progress=lambda n: steps.counted("analysing stages", n))
+                                               progress=lambda n: steps.counted("analysing stages", n),
+                                               solve=solve)
         settled()
     if getattr(args, "simulate", False):
         from analyze.simulate.run import simulate_result
@@ -108,8 +110,32 @@ def _check(args, tech, constraints) -> int:
     if html is not None:
         outputs.add(args.html, html)
     outputs.commit()
+    for line in notes:
+        sys.stderr.write(f"warning: {line}\n")
     warn(list(circuit.findings) + list(recognition.findings))
     return 1 if failed else 0
+
+
+def _cluster(args, tech, steps, notes):
+    """With ``--scheduler``: the connection to the cluster, giving the
+    ``solve`` of :func:`analyze.search.analysis.analyse_circuit`
+    (:mod:`analyze.cli.cluster_block`).  Otherwise, or with ``[models]``
+    in the tech file (analysed here, stage by stage; a note says so): None."""
+    from contextlib import nullcontext
+
+    address = getattr(args, "scheduler", None)
+    if address is None:
+        return nullcontext()
+    if tech.models is not None:
+        from extract.errors import InputError
+
+        notes.append(InputError(address, "not used: with [models] in the tech file every stage is analysed "
+                                "on this machine (the foundry-model analysis is not shared between stage "
+                                "contexts)", "--scheduler").line())
+        return nullcontext()
+    from analyze.cli.cluster_block import block_solver
+
+    return block_solver(address, steps)
 
 
 def warn(findings) -> None:

@@ -1,5 +1,9 @@
 """``check LIB --all-cells --scheduler ADDRESS``: the cells of a library on
-a Dask distributed cluster.
+a Dask distributed cluster; and what every ``--scheduler`` run shares: the
+connection (:func:`cluster_client`), chunks of work sent out and taken back
+(:func:`run_chunks`), the worker-side version check (:func:`on_worker`).
+One block's stage contexts go out through the same functions
+(:mod:`analyze.cli.cluster_block`).
 
 The client (this process) reads the library once to list its cells, as for
 the local run, then connects to the scheduler at ADDRESS, sends the cells
@@ -23,10 +27,11 @@ from __future__ import annotations
 import hashlib
 import os
 import threading
+from contextlib import contextmanager
 
 from extract.errors import InputError
 
-__all__ = ["CONNECT_TIMEOUT_S", "file_digest", "as_given", "cluster_map"]
+__all__ = ["CONNECT_TIMEOUT_S", "file_digest", "as_given", "on_worker", "cluster_client", "run_chunks", "cluster_map"]
 
 #: Seconds to wait for the scheduler to answer, and for a first worker
 #: (the environment variable ``DYNSHARE_SCHEDULER_TIMEOUT`` overrides it).
@@ -132,15 +137,26 @@ def _refusal(resolved: tuple, digests: tuple, version: str) -> str | None:
     return _DIGESTS[key]
 
 
-def _cluster_chunk(check, given: tuple, resolved: tuple, digests: tuple, version: str, cells: list[str]):
-    """Worker side: ``("ok", outcomes)`` of ``cells``, or ``("refused", why)``.
+def on_worker(version: str, work, resolved: tuple = (), digests: tuple = ()):
+    """Worker side of every task: ``("ok", work())``, or ``("refused", why)``
+    when this worker runs another dynshare version than the client's
+    ``version`` or does not read the client's bytes at the paths
+    ``resolved`` (their SHA-256 ``digests``).
 
-    One chunk at a time per worker process (a lock): the checks hold the
-    GIL, so threads of one worker would only take turns, and the opened
-    library is shared.
+    One task at a time per worker process (a lock): the checks hold the
+    GIL, so threads of one worker would only take turns, and what a task
+    opened (a library) is shared.
+
+    Examples
+    --------
+    >>> from extract.writers.numbers import tool_version
+    >>> on_worker(tool_version(), lambda: 42)
+    ('ok', 42)
+    >>> on_worker("0.0-other", lambda: 42)[1].startswith("worker a worker runs dynshare")
+    True
     """
     with _LOCK:
-        why = _refusal(resolved, digests, version)
+        why = _refusal(tuple(resolved), tuple(digests), version)
         if why is not None:
             try:
                 from distributed import get_worker
@@ -149,14 +165,23 @@ def _cluster_chunk(check, given: tuple, resolved: tuple, digests: tuple, version
             except Exception:  # not inside a worker (called directly)
                 who = "a worker"
             return "refused", f"worker {who} {why}"
-        names = {r: g for r, g in zip(resolved, given) if r is not None}
+        return "ok", work()
+
+
+def _cluster_chunk(check, given: tuple, resolved: tuple, digests: tuple, version: str, cells: list[str]):
+    """Worker side: ``("ok", outcomes)`` of ``cells``, or ``("refused", why)``."""
+    names = {r: g for r, g in zip(resolved, given) if r is not None}
+
+    def work():
         outcomes = []
         for cell in cells:
             out = check(resolved[0], resolved[1], cell, resolved[2])
             out.error = as_given(out.error, names)
             out.findings = [as_given(f, names) for f in out.findings]
             outcomes.append(out)
-        return "ok", outcomes
+        return outcomes
+
+    return on_worker(version, work, resolved, digests)
 
 
 def _timeout(address: str) -> float:
@@ -173,7 +198,18 @@ def _timeout(address: str) -> float:
     return value
 
 
-def _connect(address: str):
+@contextmanager
+def cluster_client(address: str):
+    """A Dask ``Client`` of the scheduler at ``address`` with at least one
+    worker, closed on leaving.
+
+    Raises
+    ------
+    InputError
+        Dask distributed is not installed, the scheduler does not answer,
+        or no worker joins within the timeout (:data:`CONNECT_TIMEOUT_S`):
+        one line naming ADDRESS and ``--scheduler``.
+    """
     import logging
 
     try:
@@ -190,12 +226,69 @@ def _connect(address: str):
         raise InputError(address, f"cannot reach the scheduler ({type(exc).__name__}: {exc})",
                          "--scheduler") from None
     try:
-        client.wait_for_workers(1, timeout=timeout)
-    except Exception:
+        try:
+            client.wait_for_workers(1, timeout=timeout)
+        except Exception:
+            raise InputError(address, f"no worker joined the scheduler within {timeout:g} s",
+                             "--scheduler") from None
+        yield client
+    finally:
         client.close()
-        raise InputError(address, f"no worker joined the scheduler within {timeout:g} s",
-                         "--scheduler") from None
-    return client
+
+
+def run_chunks(client, address: str, task, args: tuple, items: list, chunking):
+    """Run ``task(*args, chunk)`` on the workers for chunks of ``items``;
+    yield ``(chunk, value)`` as they finish.
+
+    Parameters
+    ----------
+    client : distributed.Client
+        From :func:`cluster_client`.
+    address : str
+        The scheduler (for messages).
+    task : callable
+        Module-level (the workers import it by name); returns what
+        :func:`on_worker` returns.
+    args : tuple
+        Sent with every chunk (pickled once per task).
+    items : list
+    chunking : callable
+        ``chunking(items, workers)`` → list of lists, one task each;
+        ``workers`` is how many the scheduler has at the start.
+
+    Yields
+    ------
+    (list, object)
+        A chunk and the ``work()`` value of :func:`on_worker` for it.
+
+    Raises
+    ------
+    InputError
+        A task failed (a lost worker, dynshare missing there) or a worker
+        refused it: one line naming ADDRESS and ``--scheduler``.
+
+    Notes
+    -----
+    One task per chunk, submitted at once; the scheduler hands them to
+    workers as they free up (workers that join later take some too).
+    Cost: a few ms of scheduling per chunk and the pickled arguments and
+    results each way.
+    """
+    if not items:
+        return
+    from distributed import as_completed
+
+    chunks = chunking(items, max(1, len(client.scheduler_info().get("workers", {}))))
+    futures = {client.submit(task, *args, ch, pure=False): ch for ch in chunks}
+    for fut in as_completed(list(futures)):
+        try:
+            kind, value = fut.result()
+        except Exception as exc:
+            raise InputError(address, f"a worker failed ({type(exc).__name__}: {exc}); the workers need "
+                             "dynshare and its dependencies installed", "--scheduler") from None
+        if kind == "refused":
+            raise InputError(address, value, "--scheduler")
+        yield futures[fut], value
 
 
 def cluster_map(address: str, check, files: tuple, cells: list[str], chunking):
@@ -251,21 +344,7 @@ def cluster_map(address: str, check, files: tuple, cells: list[str], chunking):
     given = tuple(files)
     resolved = tuple(None if p is None else os.path.abspath(p) for p in given)
     digests = tuple(None if p is None else file_digest(p) for p in resolved)
-    client = _connect(address)
-    try:
-        from distributed import as_completed
-
-        chunks = chunking(cells, max(1, len(client.scheduler_info().get("workers", {}))))
-        futures = [client.submit(_cluster_chunk, check, given, resolved, digests, tool_version(), ch, pure=False)
-                   for ch in chunks]
-        for fut in as_completed(futures):
-            try:
-                kind, value = fut.result()
-            except Exception as exc:
-                raise InputError(address, f"a worker failed ({type(exc).__name__}: {exc}); the workers need "
-                                 "dynshare and its dependencies installed", "--scheduler") from None
-            if kind == "refused":
-                raise InputError(address, value, "--scheduler")
-            yield from value
-    finally:
-        client.close()
+    with cluster_client(address) as client:
+        args = (check, given, resolved, digests, tool_version())
+        for _chunk, outcomes in run_chunks(client, address, _cluster_chunk, args, cells, chunking):
+            yield from outcomes

@@ -69,11 +69,11 @@ def run_extract(args) -> int:
 
 
 def run_check(args) -> int:
-    if args.scheduler is not None and not args.all_cells:
+    if args.scheduler is not None and args.jobs is not None:
         from extract.errors import InputError
 
-        raise InputError(args.scheduler, "--scheduler distributes the cells of a library; use it with "
-                         "--all-cells (a single cell runs here)", "--scheduler")
+        raise InputError(args.scheduler, "--jobs and --scheduler exclude each other (the cluster's workers are "
+                         "the parallel processes)", "--scheduler")
     if args.all_cells:
         from analyze.cli.library import run_library
 

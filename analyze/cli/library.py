@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 from analyze.cli.output import OutputSet, check_outputs
 from analyze.report.json_report import dumps, header, input_name, rounded, stage_json
 
-__all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library", "open_library"]
+__all__ = ["CellOutcome", "check_cell_in_library", "check_library", "run_library", "open_library", "work_chunks"]
 
 _OPEN: dict = {}
 
@@ -143,11 +143,8 @@ def check_library(path, tech_path, cells, jobs=1, constraints_path=None, progres
     if scheduler:
         from analyze.cli.cluster import cluster_map
 
-        def chunking(cells, workers):
-            return _chunks(path, tech_path, cells, workers, constraints_path)
-
         files = (path, tech_path, constraints_path)
-        for out in cluster_map(scheduler, check_cell_in_library, files, cells, chunking):
+        for out in cluster_map(scheduler, check_cell_in_library, files, cells, work_chunks):
             outcomes.append(out)
             if progress:
                 progress(out)
@@ -166,19 +163,28 @@ def check_library(path, tech_path, cells, jobs=1, constraints_path=None, progres
     return outcomes
 
 
-def _chunks(path, tech_path, cells, jobs, constraints_path) -> list[list[str]]:
-    """Cells in chunks for the pool: at most 16 cells, and small enough for
-    8 tasks per worker, so that the last tasks even the load out while
-    inter-process traffic stays a few messages per worker."""
-    size = max(1, min(16, len(cells) // (8 * jobs)))
-    return [cells[i : i + size] for i in range(0, len(cells), size)]
+def work_chunks(items: list, workers: int) -> list[list]:
+    """Work (cells, stage contexts) in chunks for parallel workers: at most
+    16 items, and small enough for 8 tasks per worker, so that the last
+    tasks even the load out while inter-process traffic stays a few
+    messages per worker.
+
+    Examples
+    --------
+    >>> [len(c) for c in work_chunks(list(range(40)), 2)]
+    [2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2, 2]
+    >>> work_chunks(["a", "b", "c"], 4)
+    [['a'], ['b'], ['c']]
+    """
+    size = max(1, min(16, len(items) // (8 * workers)))
+    return [items[i : i + size] for i in range(0, len(items), size)]
 
 
 def _pool_map(path, tech_path, cells, jobs, constraints_path):
     """Outcomes of ``cells`` from ``jobs`` worker processes, as they finish."""
     methods = multiprocessing.get_all_start_methods()
     ctx = multiprocessing.get_context("fork" if "fork" in methods else None)
-    chunks = _chunks(path, tech_path, cells, jobs, constraints_path)
+    chunks = work_chunks(cells, jobs)
     with ProcessPoolExecutor(max_workers=jobs, mp_context=ctx, initializer=_worker_start,
                              initargs=(path, tech_path, constraints_path)) as pool:
         futures = [pool.submit(_check_chunk, path, tech_path, ch, constraints_path) for ch in chunks]
@@ -217,9 +223,6 @@ def run_library(args) -> int:
     if args.jobs is not None and args.jobs < 1:
         raise InputError(args.layout, f"--jobs must be at least 1, got {args.jobs}", "--jobs")
     scheduler = getattr(args, "scheduler", None)
-    if scheduler is not None and args.jobs is not None:
-        raise InputError(scheduler, "--jobs and --scheduler exclude each other (the cluster's workers are "
-                         "the parallel processes)", "--scheduler")
     check_outputs({"--json": args.json}, [args.layout, args.tech, args.constraints])
     # opened once here; forked workers inherit it (see the module text)
     source, tech, constraints = open_library(args.layout, args.tech, args.constraints)

@@ -63,9 +63,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--jobs", type=int, metavar="N",
                    help="with --all-cells: cells in N parallel processes (default 1)")
     p.add_argument("--scheduler", metavar="ADDRESS",
-                   help="with --all-cells: run the cells on the Dask distributed scheduler at ADDRESS "
-                        "(e.g. tcp://host:8786) instead of local processes; the input files must be "
-                        "visible to the workers under the same path. The JSON report is the same either way.")
+                   help="run on the workers of the Dask distributed scheduler at ADDRESS (e.g. "
+                        "tcp://host:8786): with --all-cells the cells (the input files must be visible to "
+                        "the workers under the same path), else the distinct stage contexts of the cell "
+                        "(the workers read no file). The JSON report is the same either way.")
 
     p = sub.add_parser("compare", help="pre-layout (schematic) against post-layout (layout)")
     _layout_args(p)

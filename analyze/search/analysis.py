@@ -380,7 +380,8 @@ def iter_counted_patterns(
             return
 
 
-def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None, reuse=True):
+def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, progress=None, reuse=True,
+                    solve=None):
     """Recognise the stages of ``circuit`` and analyse each one.
 
     ``progress``, when given, is called with the number of stages once they
@@ -393,6 +394,10 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, prog
     models, keyed per island by :class:`analyze.search.island_contexts.IslandContexts`);
     False analyses every stage on its own.  The results are the same.
 
+    ``solve`` (with ``reuse``): the distinct contexts are analysed by it
+    first, elsewhere (:meth:`analyze.search.contexts.StageContexts.prefetch`:
+    the workers of a cluster); the results are the same.
+
     Returns
     -------
     recognition : analyze.stages.recognize.Recognition
@@ -401,10 +406,12 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, prog
     recognition = find_stages(circuit, tech)
     if constraints is not None:
         check_constraints_apply(constraints, recognition.stages, constraints_path)
+    contexts = StageContexts(circuit, tech, constraints, analyze_stage) if reuse else None
+    if reuse and solve is not None:
+        contexts.prefetch(recognition.stages, solve)
     tick = progress(len(recognition.stages)) if progress else None
     results = []
-    contexts = StageContexts(circuit, tech, constraints, analyze_stage) if reuse else None
-    if reuse and recognition.islands is not None and constraints is None and tech.models is None:
+    if reuse and solve is None and recognition.islands is not None and constraints is None and tech.models is None:
         from analyze.search.island_contexts import IslandContexts
 
         by_island = IslandContexts(circuit, tech, recognition, analyze_stage)

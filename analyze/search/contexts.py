@@ -34,6 +34,11 @@ stage's own, and each flag's, read from the real circuit).  A stage whose
 constraint names match two of its nets without regard to case, or whose
 analysis raises an error, is analysed directly, as without contexts.
 
+Since a key holds all the analysis reads, the distinct contexts can also
+be analysed in other processes (:func:`analyse_contexts` on a chunk of
+keys, :meth:`StageContexts.prefetch` to take the results back): the
+cluster run of one block, :mod:`analyze.cli.cluster_block`.
+
 Examples
 --------
 Two copies of one footless NAND2 under different names share a context:
@@ -70,12 +75,15 @@ from analyze.stages.stage import Receiver, Stage
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import Tech
 
-__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "result_renamed"]
+__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "result_renamed",
+           "analyse_contexts"]
 
 _SIX = struct.Struct("<6d")
 _THREE = struct.Struct("<3d")
 #: A constraint name that is no net of the stage (never resolves to one of its inputs).
 _FOREIGN = "~"
+#: Kept for a context whose analysis raised: its stages are analysed directly.
+_DIRECT = object()
 
 
 def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Constraints | None = None):
@@ -312,6 +320,64 @@ def result_renamed(result, stage: Stage, circuit: Circuit, net, device):
                   simulation_notes=list(result.simulation_notes))
 
 
+def analyse_contexts(analyse, keys, tech: Tech, path: str = "<constraints>") -> list:
+    """The analysis of each context key on the circuit rebuilt from it.
+
+    What :class:`StageContexts` runs once per distinct key, here for a
+    list of keys at once: a cluster worker runs it on a chunk of keys
+    (:mod:`analyze.cli.cluster_block`).
+
+    Parameters
+    ----------
+    analyse : callable
+        ``analyse(circuit, stage, tech, constraints) -> StageResult``.
+    keys : list of tuple
+        From :func:`stage_context` (never None).
+    tech : Tech
+    path : str
+        The constraints file's path (for messages).
+
+    Returns
+    -------
+    list
+        A result in placeholder names per key, in order (rename it with
+        :func:`renamed_result`); None where the analysis raised (the
+        stages of that key are then analysed directly, in their own names).
+
+    Notes
+    -----
+    Cost: one analysis per key on a circuit of the stage's size.
+
+    Examples
+    --------
+    >>> from analyze.search.analysis import analyze_stage
+    >>> from extract.tech import MosParams, NetRoles, Tech
+    >>> p = dict(gamma=0.0, phi=0.8, kp=200.0, cox=8.0, cgo=0.0, cj=1.0, cjsw=0.2,
+    ...          cjswg=0.2, mj=0.5, mjsw=0.33, pb=0.8, pbsw=0.8)
+    >>> tech = Tech("t", 1.8, NetRoles(("VDD",), ("VSS",)), {},
+    ...             {"nmos": MosParams("nmos", 0.45, **p), "pmos": MosParams("pmos", -0.45, **p)})
+    >>> nets = {"X": Net("X", cap=CapParts(wire=30.0)), "n": Net("n", cap=CapParts(wire=10.0))}
+    >>> devs = [Device("MA", "nmos", "X", "A", "n", 1.0, 0.18), Device("MB", "nmos", "n", "B", "VSS", 1.0, 0.18)]
+    >>> st = Stage("X", "n", "CLK", "VDD", "VSS", (), ("MA", "MB"), None, None, ("A", "B"), ("n",))
+    >>> circuit = Circuit("nand2", nets, devs)
+    >>> key, names, _ = stage_context(circuit, st, tech)
+    >>> [r.worst_case.shared_nodes for r in analyse_contexts(analyze_stage, [key], tech)]
+    [['N6']]
+    >>> names[6]
+    'n'
+    """
+    return [_context_result(analyse, key, tech, path) for key in keys]
+
+
+def _context_result(analyse, key, tech, path):
+    """One context analysed on its placeholder circuit; None when that raises."""
+    c, s, cons = context_circuit(key, path)
+    try:
+        return analyse(c, s, tech, cons)
+    except Exception:  # noqa: BLE001
+        return None
+
+
 class StageContexts:
     """Stage results of one circuit, analysed once per distinct context.
 
@@ -327,41 +393,94 @@ class StageContexts:
     Attributes
     ----------
     analysed, reused : int
-        Contexts analysed, and stages that took an earlier context's result.
+        Contexts analysed (here or, by :meth:`prefetch`, elsewhere), and
+        stages that took a result analysed before them (after
+        :meth:`prefetch`, every keyed stage).
 
     Notes
     -----
     Only the lumped (tech-file) analysis is shared: with ``[models]`` in
-    the tech file each stage is analysed directly.  Cost per stage: the
-    key, O(stage size), then a dict look-up; the analysis once per key.
+    the tech file each stage is analysed directly (the foundry-model
+    analysis measures device tables per stage and is not keyed).  Cost
+    per stage: the key, O(stage size), then a dict look-up; the analysis
+    once per key.
     """
 
     def __init__(self, circuit: Circuit, tech: Tech, constraints: Constraints | None, analyse):
         self.circuit, self.tech, self.constraints, self._analyse = circuit, tech, constraints, analyse
         self._results: dict = {}
+        self._keys: dict = {}
         self.analysed = self.reused = 0
+
+    def _path(self) -> str:
+        return self.constraints.path if self.constraints is not None else "<constraints>"
+
+    def _key(self, stage: Stage):
+        """``(key, nets, devices)`` of ``stage`` (key None: not keyed)."""
+        kept = self._keys.pop(id(stage), None)
+        if kept is not None and kept[0] is stage:
+            return kept[1:]
+        try:
+            return stage_context(self.circuit, stage, self.tech, self.constraints)
+        except KeyError:  # a device the circuit lacks: whatever the analysis makes of it
+            return None, None, None
+
+    def prefetch(self, stages, solve) -> int:
+        """Analyse the distinct contexts of ``stages`` elsewhere, at once.
+
+        Parameters
+        ----------
+        stages : list of Stage
+            Those :meth:`analyse` will be asked for next.
+        solve : callable
+            ``solve(analyse, keys, tech, path)`` yields ``(key, result)``
+            for each of ``keys`` in any order, as
+            :func:`analyse_contexts` gives them (result None where the
+            analysis raised): on the workers of a cluster
+            (:mod:`analyze.cli.cluster_block`).
+
+        Returns
+        -------
+        int
+            Contexts sent to ``solve``.
+
+        Notes
+        -----
+        :meth:`analyse` then only renames (or, for stages without a key
+        and contexts whose analysis raised, analyses directly), so the
+        results are those of the local run.  The stages' keys are kept
+        until :meth:`analyse` takes them (one computation per stage; equal
+        keys share one object).  Nothing is sent with ``[models]`` in the
+        tech file (those stages are analysed directly).
+        """
+        if self.tech.models is not None:
+            return 0
+        distinct: dict = {}
+        for st in stages:
+            key, nets, devices = self._key(st)
+            if key is not None:
+                key = distinct.setdefault(key, key)
+                self._keys[id(st)] = (st, key, nets, devices)
+        todo = [k for k in distinct if k not in self._results]
+        for key, result in solve(self._analyse, todo, self.tech, self._path()) if todo else ():
+            self._results[key] = _DIRECT if result is None else result
+            self.analysed += result is not None
+        return len(todo)
 
     def analyse(self, stage: Stage):
         """The :class:`~analyze.search.analysis.StageResult` of ``stage``."""
         if self.tech.models is not None:
             return self._analyse(self.circuit, stage, self.tech, self.constraints)
-        try:
-            key, nets, devices = stage_context(self.circuit, stage, self.tech, self.constraints)
-        except KeyError:  # a device the circuit lacks: whatever the analysis makes of it
-            key = None
-        if key is None:
-            return self._analyse(self.circuit, stage, self.tech, self.constraints)
-        hit = self._results.get(key)
-        if hit is None:
-            path = self.constraints.path if self.constraints is not None else "<constraints>"
-            c, s, cons = context_circuit(key, path)
-            try:
-                hit = self._analyse(c, s, self.tech, cons)
-            except Exception:  # noqa: BLE001
-                # said in the real stage's own names, as without contexts
-                return self._analyse(self.circuit, stage, self.tech, self.constraints)
-            self._results[key] = hit
-            self.analysed += 1
-        else:
+        key, nets, devices = self._key(stage)
+        hit = None if key is None else self._results.get(key)
+        if key is not None and hit is None:
+            hit = _context_result(self._analyse, key, self.tech, self._path())
+            self._results[key] = _DIRECT if hit is None else hit
+            self.analysed += hit is not None
+        elif hit is not None and hit is not _DIRECT:
             self.reused += 1
+        if hit is None or hit is _DIRECT:
+            # not keyed, or the context's analysis raised: said in the real
+            # stage's own names, as without contexts
+            return self._analyse(self.circuit, stage, self.tech, self.constraints)
         return renamed_result(hit, stage, self.circuit, nets, devices)

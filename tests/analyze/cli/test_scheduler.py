@@ -3,7 +3,8 @@ cluster (here a local one, started by the test, two worker processes).
 
 Source of the expectations: the single-machine run (``--jobs 1``) is the
 reference; the JSON report with ``--scheduler`` must be byte-identical to it,
-and so must the exit status, the table and the ``error:`` line."""
+and so must the exit status, the table and the ``error:`` line.  The cluster
+is the ``scheduler`` fixture (conftest.py)."""
 
 import os
 import socket
@@ -11,33 +12,11 @@ import subprocess
 import sys
 
 import pytest
-from distributed import LocalCluster
+from cli_run import run_dynshare as run
 
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..", ".."))
 GDS = os.path.join(ROOT, "sample_layouts", "dsk18_cells.gds")
 TECH = os.path.join(ROOT, "sample_layouts", "dsk18.toml")
-
-
-def run(*args, cwd=ROOT, env=None):
-    full = dict(os.environ, PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""), **(env or {}))
-    p = subprocess.run([sys.executable, "-m", "analyze", *map(str, args)], capture_output=True, text=True,
-                       timeout=300, cwd=cwd, env=full)
-    return p.returncode, p.stdout, p.stderr
-
-
-@pytest.fixture(scope="module")
-def scheduler():
-    # the workers are new processes: they import dynshare from the same tree
-    before = os.environ.get("PYTHONPATH")
-    os.environ["PYTHONPATH"] = ROOT + os.pathsep + (before or "")
-    try:
-        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
-            yield cluster.scheduler_address
-    finally:
-        if before is None:
-            del os.environ["PYTHONPATH"]
-        else:
-            os.environ["PYTHONPATH"] = before
 
 
 def both(tmp_path, source, tech, scheduler, cwd=ROOT):
@@ -81,14 +60,11 @@ def test_unreachable_scheduler_one_error_line():
     assert se.startswith(f"error: {address}: --scheduler: cannot reach the scheduler (")
 
 
-@pytest.mark.parametrize("args, says", [
-    (["--all-cells", "--jobs", "2"], "--jobs and --scheduler exclude each other"),
-    (["--cell", "DYN_NAND3"], "use it with --all-cells"),
-])
-def test_refused_combinations(args, says):
+@pytest.mark.parametrize("args", [["--all-cells", "--jobs", "2"], ["--cell", "DYN_NAND3", "--jobs", "2"]])
+def test_refused_combinations(args):
     rc, so, se = run("check", GDS, "--tech", TECH, "--scheduler", "tcp://127.0.0.1:1", *args)
     assert rc == 2 and se == f"error: tcp://127.0.0.1:1: --scheduler: {se.split('--scheduler: ', 1)[1]}"
-    assert says in se and len(se.splitlines()) == 1
+    assert "--jobs and --scheduler exclude each other" in se and len(se.splitlines()) == 1
 
 
 def test_worker_reading_other_bytes_is_refused(scheduler, monkeypatch):
@@ -123,12 +99,14 @@ def test_worker_missing_file_is_refused(tmp_path):
     assert kind == "refused" and "the client 0.0-other" in why
 
 
-def test_local_run_does_not_import_dask(tmp_path):
-    # source: the design rule (Dask only with --scheduler), counted in sys.modules
+@pytest.mark.parametrize("args", [["--all-cells", "--jobs", "2"], ["--cell", "DYN_NAND3_LONG"]])
+def test_local_run_does_not_import_dask(tmp_path, args):
+    # source: the design rule (Dask only with --scheduler), counted in
+    # sys.modules, for a library and for one cell (exit 1: DYN_NAND3_LONG fails)
     code = ("import sys; from analyze.cli.main import main; "
-            f"rc = main(['check', {GDS!r}, '--tech', {TECH!r}, '--all-cells', '--jobs', '2', "
-            f"'--json', {str(tmp_path / 'r.json')!r}]); "
-            "print(rc, sorted(m for m in sys.modules if m.split('.')[0] in ('dask', 'distributed')))")
+            f"rc = main(['check', {GDS!r}, '--tech', {TECH!r}, *{args!r}, '--json', {str(tmp_path / 'r.json')!r}]); "
+            "print(rc, sorted(m for m in sys.modules if m.split('.')[0] in ('dask', 'distributed') "
+            "or m.startswith('analyze.cli.cluster')))")
     p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300, cwd=ROOT,
                        env=dict(os.environ, PYTHONPATH=ROOT))
     assert p.stdout.splitlines()[-1] == "1 []", p.stderr

@@ -23,7 +23,8 @@ from analyze.cli.check import check_report
 from analyze.report.json_report import dumps
 from analyze.search.analysis import analyse_circuit, analyze_stage
 from analyze.search.constraints import load_constraints, parse_constraints
-from analyze.search.contexts import StageContexts, stage_context
+from analyze.search.contexts import StageContexts, analyse_contexts, stage_context
+from analyze.stages.recognize import find_stages
 from analyze.stages.stage import Receiver
 from extract.circuit import CapParts, Circuit, JunctionGeometry
 from extract.layout.pipeline import extract_layout
@@ -91,6 +92,56 @@ def test_mixed_block_same_report_flags_renamed(tmp_path):
     report, n, ctx = _array_checked(mixed_block(2, 2), str(tmp_path / "m.gds"))
     assert '"add precharge device"' in report
     assert ctx.reused > 0 and ctx.analysed + ctx.reused == n
+
+
+def _solver(calls, failed=False):
+    """A ``solve`` for StageContexts.prefetch that runs here (the cluster's
+    stand-in), recording the keys it is given; ``failed``: every result
+    comes back None (the analysis raised where it ran)."""
+    def solve(analyse, keys, tech, path):
+        calls.append(list(keys))
+        done = analyse_contexts(analyse, keys, tech, path)
+        for key, result in reversed(list(zip(keys, done))):  # any order
+            yield key, None if failed else result
+    return solve
+
+
+def _mixed(folder):
+    path = str(folder / "m.gds")
+    mixed_block(2, 2).write_gds(path)
+    circuit = extract_layout(path, dsk18(), "MIXED_BLOCK")
+    return circuit, both_ways(circuit, dsk18())[0]
+
+
+def test_prefetched_contexts_same_report(tmp_path):
+    # reference: the report without contexts; each distinct key goes out
+    # once (brute force: the set of every stage's key), analyse then renames
+    circuit, reference = _mixed(tmp_path)
+    calls = []
+    rec, res = analyse_circuit(circuit, dsk18(), solve=_solver(calls))
+    assert dumps(check_report(circuit, dsk18(), rec, res)) == reference
+    keys = {stage_context(circuit, s, dsk18())[0] for s in rec.stages}
+    assert len(calls) == 1 and len(calls[0]) == len(keys) and set(calls[0]) == keys
+
+
+def test_contexts_that_raised_elsewhere_analysed_here(tmp_path):
+    # None back for every key: each stage analysed directly in its own
+    # names (no context analysed or reused), the report unchanged
+    circuit, reference = _mixed(tmp_path)
+    rec = find_stages(circuit, dsk18())
+    ctx = StageContexts(circuit, dsk18(), None, analyze_stage)
+    assert ctx.prefetch(rec.stages, _solver([], failed=True)) > 0
+    res = [ctx.analyse(s) for s in rec.stages]
+    assert ctx.analysed == ctx.reused == 0
+    assert dumps(check_report(circuit, dsk18(), rec, res)) == reference
+
+
+def test_models_tech_sends_nothing():
+    # with [models] no stage is keyed (module text): prefetch sends nothing
+    tech = dataclasses.replace(make_tech(), models=object())
+    calls = []
+    assert StageContexts(Circuit("c", {}, []), tech, None, analyze_stage).prefetch([], _solver(calls)) == 0
+    assert calls == []
 
 
 @pytest.mark.parametrize("groups", [

@@ -389,9 +389,7 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, prog
     analysed (see :meth:`analyze.cli.progress.Steps.counted`).
 
     ``reuse`` (default True): stages with the same context are analysed
-    once and the result renamed (:class:`analyze.search.contexts.StageContexts`;
-    for a block recognised by islands, without constraints or foundry
-    models, keyed per island by :class:`analyze.search.island_contexts.IslandContexts`);
+    once and the result renamed (:class:`analyze.search.contexts.StageContexts`);
     False analyses every stage on its own.  The results are the same.
 
     ``solve`` (with ``reuse``): the distinct contexts are analysed by it
@@ -411,15 +409,6 @@ def analyse_circuit(circuit, tech, constraints=None, constraints_path=None, prog
         contexts.prefetch(recognition.stages, solve)
     tick = progress(len(recognition.stages)) if progress else None
     results = []
-    if reuse and solve is None and recognition.islands is not None and constraints is None and tech.models is None:
-        from analyze.search.island_contexts import IslandContexts
-
-        by_island = IslandContexts(circuit, tech, recognition, analyze_stage)
-        for k, st in enumerate(recognition.stages):
-            results.append(by_island.analyse(k, st))
-            if tick:
-                tick()
-        return recognition, results
     for st in recognition.stages:
         results.append(contexts.analyse(st) if reuse else analyze_stage(circuit, st, tech, constraints))
         if tick:

@@ -75,8 +75,7 @@ from analyze.stages.stage import Receiver, Stage
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import Tech
 
-__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "result_renamed",
-           "analyse_contexts"]
+__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "analyse_contexts"]
 
 _SIX = struct.Struct("<6d")
 _THREE = struct.Struct("<3d")
@@ -299,23 +298,16 @@ def renamed_result(result, stage: Stage, circuit: Circuit, nets: list[str], devi
     StageResult
         New records throughout (the cached one is never shared).
     """
-    return result_renamed(result, stage, circuit, lambda k: nets[int(k[1:])], lambda d: devices[int(d[1:])])
-
-
-def result_renamed(result, stage: Stage, circuit: Circuit, net, device):
-    """A stage result with every net name ``n`` put as ``net(n)`` and
-    every device name ``d`` as ``device(d)``, for ``stage`` of ``circuit``
-    (flags located on the real nets); new records throughout."""
     wc = result.worst_case
     if wc is not None:
-        wc = _clone(wc, inputs={net(k): v for k, v in wc.inputs.items()},
-                    shared_nodes=[net(n) for n in wc.shared_nodes])
+        wc = _clone(wc, inputs={nets[int(k[1:])]: v for k, v in wc.inputs.items()},
+                    shared_nodes=[nets[int(n[1:])] for n in wc.shared_nodes])
     flags = []
     for f in result.flags:
-        node = net(f.node)
-        real = circuit.nets.get(node)
-        flags.append(_clone(f, node=node, location_um=None if real is None else real.location_um,
-                            between=tuple(device(d) for d in f.between)))
+        node = nets[int(f.node[1:])]
+        net = circuit.nets.get(node)
+        flags.append(_clone(f, node=node, location_um=None if net is None else net.location_um,
+                            between=tuple(devices[int(d[1:])] for d in f.between)))
     return _clone(result, stage=stage, worst_case=wc, flags=flags, simulation=list(result.simulation),
                   simulation_notes=list(result.simulation_notes))
 

@@ -111,8 +111,7 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
         for i in isl.islands_with(c):
             clock_ranks.setdefault(i, []).append(isl.rank(i, c))
     built: dict[tuple, tuple] = {}
-    group: dict[tuple, int] = {}
-    stages: list[tuple[Stage, tuple]] = []
+    stages: list[Stage] = []
     findings: dict[str, list[Finding]] = {s.polarity: [] for s in SIDES}
     for i in sorted(clock_ranks):
         pair = (key_of[i], tuple(sorted(set(clock_ranks[i]))))
@@ -122,21 +121,16 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
             clocks = {f"~N{r:07d}" for r in pair[1]}
             got = built[pair] = tuple(side_stages(topo, side, clocks, static, _place) for side in SIDES)
         rn = isl.renamer(i)
-        g = group.setdefault(pair, len(group))
-        j = 0
         for side, (found, notes) in zip(SIDES, got):
             topo = subs[pair[0]][0]
-            for s in found:
-                stages.append((_renamed_stage(s, rn, circuit), (i, g, j)))
-                j += 1
+            stages += [_renamed_stage(s, rn, circuit) for s in found]
             findings[side.polarity] += [_renamed_finding(f, rn, topo, circuit) for f in notes]
-    stages.sort(key=lambda so: (so[0].dynamic_node, so[0].polarity))
+    stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
     notes = list(inference.findings)
     for side in SIDES:
         notes += sorted(findings[side.polarity], key=Finding.text)
-    return Recognition(stages=[s for s, _ in stages], findings=notes, clocks=inference.clocks,
-                       clock_inferred=inference.inferred, clock_note=inference.note,
-                       islands=(isl, [o for _, o in stages]))
+    return Recognition(stages=stages, findings=notes, clocks=inference.clocks,
+                       clock_inferred=inference.inferred, clock_note=inference.note)
 
 
 def _location(circuit, net: str | None, device: str | None):

@@ -86,21 +86,12 @@ class Islands:
     roles : dict of str to str
         Every net whose role is not ``"signal"`` (the circuit's, else the
         tech file's by name).
-    net_ids : dict of str to int
-        A number per net with a device terminal (in order of first use).
-    device_order, device_starts : numpy.ndarray
-        Circuit device indices island by island (circuit order within
-        each), and where each island's run starts (one more entry).
-    net_order, net_starts : numpy.ndarray
-        Net numbers island by island (rank order within each), and where
-        each island's run starts.
     """
 
     def __init__(self, circuit, keys, key_of, first, roles, parts):
         self.circuit, self.keys, self.key_of, self.first, self.roles = circuit, keys, key_of, first, roles
         (self._net_start, self._net_names, self._net_roles, self._dev_start, self._dev_index,
-         self._dev_rows, self._dev_sorted, self.net_ids, self._islands_of, self._is_gate, self.net_order) = parts
-        self.device_order, self.device_starts, self.net_starts = self._dev_index, self._dev_start, self._net_start
+         self._dev_rows, self._dev_sorted, self.net_ids, self._islands_of, self._is_gate) = parts
 
     def __len__(self) -> int:
         return len(self.key_of)
@@ -306,6 +297,5 @@ def circuit_islands(circuit: Circuit, tech: Tech) -> Islands:
         lo, hi = np.searchsorted(sorted_net, [r, r + 1])
         return pair_island[by_net[lo:hi]].tolist()
 
-    parts = (net_start, net_names, net_roles, dev_start, by_island, rows, dev_sorted, ids, islands_of, is_gate,
-             net_ids)
+    parts = (net_start, net_names, net_roles, dev_start, by_island, rows, dev_sorted, ids, islands_of, is_gate)
     return Islands(circuit, keys, key_of, first, roles, parts)

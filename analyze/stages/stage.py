@@ -104,11 +104,6 @@ class Recognition:
         True when some clock was not declared in the tech file.
     clock_note : str
         Where each clock came from, e.g. ``"clock CLK from tech file"``.
-    islands : tuple or None
-        When recognised by islands (:mod:`analyze.stages.by_islands`):
-        ``(Islands, origins)``, ``origins[k]`` being ``(island, group,
-        index)`` of ``stages[k]``: stages with equal ``(group, index)``
-        are the same stage of islands with one key and one clock set.
     """
 
     stages: list[Stage] = field(default_factory=list)
@@ -116,4 +111,3 @@ class Recognition:
     clocks: list[str] = field(default_factory=list)
     clock_inferred: bool = False
     clock_note: str = ""
-    islands: tuple | None = None

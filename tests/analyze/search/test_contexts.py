@@ -14,7 +14,6 @@ import dataclasses
 import functools
 from pathlib import Path
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -326,77 +325,3 @@ def test_order_of_names_is_part_of_the_key():
     swap = {"A": "C", "C": "A"}
     other, ostage = _renamed(circuit, stage, lambda n: swap.get(n, n))
     assert stage_context(other, ostage, TECH)[0] != stage_context(circuit, stage, TECH)[0]
-
-
-# -- blocks recognised by islands (analyze.search.island_contexts) ----------
-
-@pytest.fixture
-def by_islands(monkeypatch):
-    """Recognition by islands for every circuit (by default only for
-    circuits of ISLANDS_FROM devices whose islands repeat)."""
-    from analyze.search import analysis
-    from analyze.stages.recognize import find_stages
-
-    monkeypatch.setattr(analysis, "find_stages", functools.partial(find_stages, islands=True))
-
-
-@pytest.mark.parametrize("lib, top", [(lambda: nand3_array(6, 5), "NAND3_ARRAY"),
-                                      (lambda: mixed_block(2, 2), "MIXED_BLOCK")])
-def test_island_contexts_same_report(tmp_path, by_islands, lib, top):
-    path = str(tmp_path / "b.gds")
-    lib().write_gds(path)
-    circuit = extract_layout(path, dsk18(), top)
-    rec, _ = analyse_circuit(circuit, dsk18())
-    assert rec.islands is not None  # the island path ran
-    a, b = both_ways(circuit, dsk18())
-    assert a == b
-
-
-_CHANGES = [("device", f) for f in ("w_um", "l_um", "ad_um2", "as_um2", "pd_um", "ps_um")] + \
-           [("net", f) for f in ("junction_area", "junction_sidewall", "junction_gate_edge", "wire", "gate",
-                                 "overlap")] + [("junction", f) for f in ("area_um2", "field_perimeter_um",
-                                                                           "gate_perimeter_um")]
-
-
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(change=st.sampled_from(_CHANGES), pick=st.integers(0, 10**6), scale=st.sampled_from([0.5, 1.5, 3.0]))
-def test_island_numbers_changed_in_one_island_same_report(tmp_path_factory, by_islands, change, pick, scale):
-    # One number of one device or net of one island changed: the island's
-    # stages must be analysed anew (the reference, each stage on its own,
-    # sees the change), so the report stays the same bytes both ways.
-    path = str(tmp_path_factory.mktemp("isl") / "a.gds")
-    nand3_array(4, 3).write_gds(path)
-    circuit = extract_layout(path, dsk18(), "NAND3_ARRAY")
-    kind, field = change
-    if kind == "device":
-        d = circuit.devices[pick % len(circuit.devices)]
-        setattr(d, field, getattr(d, field) * scale + 0.01)
-    else:
-        names = sorted(n for n, x in circuit.nets.items() if x.role == "signal" and
-                       (kind == "net" or x.junctions))
-        net = circuit.nets[names[pick % len(names)]]
-        if kind == "net":
-            net.cap = dataclasses.replace(net.cap, **{field: getattr(net.cap, field) * scale + 0.01})
-        else:
-            t = sorted(net.junctions)[0]
-            j = net.junctions[t]
-            net.junctions = {**net.junctions, t: dataclasses.replace(j, **{field: getattr(j, field) * scale + 0.01})}
-    a, b = both_ways(circuit, dsk18())
-    assert a == b
-
-
-def test_island_classes_exact_when_every_hash_collides(tmp_path, by_islands, monkeypatch):
-    # Hand reasoning: with a zero multiplier the row hash keeps only the
-    # last number of each row, so islands that differ elsewhere collide;
-    # the exact comparison with each class's first row must still part
-    # them (one island's wire changed: its stage analysed anew).
-    from analyze.search import island_contexts
-
-    monkeypatch.setattr(island_contexts, "_MIX", np.uint64(0))
-    path = str(tmp_path / "a.gds")
-    nand3_array(3, 3).write_gds(path)
-    circuit = extract_layout(path, dsk18(), "NAND3_ARRAY")
-    x = sorted(n for n in circuit.nets if n.startswith("X"))[4]
-    circuit.nets[x].cap = dataclasses.replace(circuit.nets[x].cap, wire=circuit.nets[x].cap.wire + 7.0)
-    a, b = both_ways(circuit, dsk18())
-    assert a == b

@@ -52,13 +52,12 @@ def load_run_inputs(args, *extra_inputs):
 
 def check_text(circuit, tech, recognition, results) -> str:
     """The terminal report: header, one block per stage, the pass count."""
-    text = check_header(circuit, tech, recognition)
-    for r in results:
-        text += "\n" + stage_block(r, circuit, tech)
+    parts = [check_header(circuit, tech, recognition)]
+    parts += ["\n" + stage_block(r, circuit, tech) for r in results]
     if results:
         failed = sum(r.status == "fail" for r in results)
-        text += f"\n{len(results) - failed} of {len(results)} stages pass\n"
-    return text
+        parts.append(f"\n{len(results) - failed} of {len(results)} stages pass\n")
+    return "".join(parts)  # joined once: a string grown stage by stage may be copied each time
 
 
 def check_cell(args) -> int:

@@ -85,8 +85,12 @@ _FOREIGN = "~"
 _DIRECT = object()
 
 
-def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Constraints | None = None):
+def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Constraints | None = None,
+                  rows: dict | None = None):
     """The context key of ``stage`` and its names in rank order.
+
+    ``rows``, when given, keeps the key rows of rail and clock nets between
+    calls on one circuit (they are in every stage).
 
     Parameters
     ----------
@@ -142,7 +146,13 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
     get = circuit.nets.get
     pack6, pack3 = _SIX.pack, _THREE.pack
     net_rows = []
+    if rows is None:
+        rows = {}
     for n in nets:
+        row = rows.get(n)
+        if row is not None:
+            net_rows.append(row)
+            continue
         net = get(n)
         if net is None:
             net_rows.append((tech.role_of(n), None, ()))
@@ -151,8 +161,11 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
         jn = net.junctions
         junctions = tuple(sorted((t, pack3(j.area_um2, j.field_perimeter_um, j.gate_perimeter_um))
                                  for t, j in jn.items())) if jn else ()
-        net_rows.append((net.role, pack6(c.junction_area, c.junction_sidewall, c.junction_gate_edge,
-                                         c.wire, c.gate, c.overlap), junctions))
+        row = (net.role, pack6(c.junction_area, c.junction_sidewall, c.junction_gate_edge,
+                               c.wire, c.gate, c.overlap), junctions)
+        if net.role != "signal":  # rails and clocks: in every stage, made once (few, so kept)
+            rows[n] = row
+        net_rows.append(row)
     dev_rows = tuple([
         (d.type, d.model, ni[d.drain], ni[d.gate], ni[d.source],
          pack6(d.w_um, d.l_um, d.ad_um2, d.as_um2, d.pd_um, d.ps_um))
@@ -402,6 +415,7 @@ class StageContexts:
         self.circuit, self.tech, self.constraints, self._analyse = circuit, tech, constraints, analyse
         self._results: dict = {}
         self._keys: dict = {}
+        self._rows: dict = {}  # key rows of rail and clock nets, shared by every stage
         self.analysed = self.reused = 0
 
     def _path(self) -> str:
@@ -413,7 +427,7 @@ class StageContexts:
         if kept is not None and kept[0] is stage:
             return kept[1:]
         try:
-            return stage_context(self.circuit, stage, self.tech, self.constraints)
+            return stage_context(self.circuit, stage, self.tech, self.constraints, self._rows)
         except KeyError:  # a device the circuit lacks: whatever the analysis makes of it
             return None, None, None
 

@@ -119,12 +119,17 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
         if got is None:
             topo, static, _ = sub(pair[0])
             clocks = {f"~N{r:07d}" for r in pair[1]}
-            got = built[pair] = tuple(side_stages(topo, side, clocks, static, _place) for side in SIDES)
-        rn = isl.renamer(i)
+            got = []
+            for side in SIDES:
+                found, notes = side_stages(topo, side, clocks, static, _place)
+                got.append(([_StageTemplate(st) for st in found], notes))
+            got = built[pair] = tuple(got)
+        nets, devs = isl.names(i), isl.device_names(i)
         for side, (found, notes) in zip(SIDES, got):
-            topo = subs[pair[0]][0]
-            stages += [_renamed_stage(s, rn, circuit) for s in found]
-            findings[side.polarity] += [_renamed_finding(f, rn, topo, circuit) for f in notes]
+            stages += [t.stage(nets, devs, circuit) for t in found]
+            if notes:
+                rn, topo = isl.renamer(i), subs[pair[0]][0]
+                findings[side.polarity] += [_renamed_finding(f, rn, topo, circuit) for f in notes]
     stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
     notes = list(inference.findings)
     for side in SIDES:
@@ -150,22 +155,43 @@ def _renamed_finding(f: Finding, rn, topo: Topology, circuit) -> Finding:
     return Finding(rn(f.message), _location(circuit, rn(net), dname))
 
 
-def _renamed_stage(s: Stage, rn, circuit) -> Stage:
-    names = lambda xs: tuple(map(rn, xs))  # noqa: E731
-    return Stage(
-        dynamic_node=rn(s.dynamic_node),
-        polarity=s.polarity,
-        clock=rn(s.clock),
-        supply=rn(s.supply),
-        rail=rn(s.rail),
-        precharge=names(s.precharge),
-        evaluation=names(s.evaluation),
-        footer=rn(s.footer),
-        footer_node=rn(s.footer_node),
-        inputs=names(s.inputs),
-        internal_nodes=names(s.internal_nodes),
-        keepers=names(s.keepers),
-        receivers=tuple(Receiver(rn(r.nmos), rn(r.pmos), rn(r.output)) for r in s.receivers),
-        secondary_precharge={rn(k): rn(v) for k, v in s.secondary_precharge.items()},
-        location_um=_location(circuit, rn(s.dynamic_node), None),
-    )
+def _rank(name: str | None):
+    """The rank in a placeholder name (``~N0000012`` -> 12); None stays None."""
+    return None if name is None else int(name[2:])
+
+
+class _StageTemplate:
+    """A stage of a placeholder circuit as ranks, made into the stage of
+    any island with that key by indexing its names (:meth:`stage`)."""
+
+    def __init__(self, s: Stage):
+        r = _rank
+        self.polarity = s.polarity
+        self.nets = (r(s.dynamic_node), r(s.clock), r(s.supply), r(s.rail), r(s.footer_node))
+        self.footer = r(s.footer)
+        self.precharge, self.evaluation = [r(d) for d in s.precharge], [r(d) for d in s.evaluation]
+        self.keepers = [r(d) for d in s.keepers]
+        self.inputs, self.internal = [r(n) for n in s.inputs], [r(n) for n in s.internal_nodes]
+        self.receivers = [(r(x.nmos), r(x.pmos), r(x.output)) for x in s.receivers]
+        self.secondary = [(r(n), r(d)) for n, d in s.secondary_precharge.items()]
+
+    def stage(self, nets: list[str], devs: list[str], circuit) -> Stage:
+        """The stage with the island's names (``nets``, ``devs`` by rank);
+        located on the real dynamic node, as the whole-circuit recognition
+        locates it."""
+        x, clock, supply, rail, foot = self.nets
+        x = nets[x]
+        net = circuit.nets.get(x)
+        return Stage(
+            dynamic_node=x, polarity=self.polarity, clock=nets[clock], supply=nets[supply], rail=nets[rail],
+            precharge=tuple([devs[k] for k in self.precharge]),
+            evaluation=tuple([devs[k] for k in self.evaluation]),
+            footer=None if self.footer is None else devs[self.footer],
+            footer_node=None if foot is None else nets[foot],
+            inputs=tuple([nets[k] for k in self.inputs]),
+            internal_nodes=tuple([nets[k] for k in self.internal]),
+            keepers=tuple([devs[k] for k in self.keepers]),
+            receivers=tuple([Receiver(devs[a], devs[b], nets[c]) for a, b, c in self.receivers]),
+            secondary_precharge={nets[n]: devs[d] for n, d in self.secondary},
+            location_um=None if net is None else net.location_um,
+        )

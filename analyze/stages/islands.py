@@ -46,6 +46,7 @@ A circuit with no devices has no islands:
 from __future__ import annotations
 
 import re
+from itertools import repeat
 
 import numpy as np
 from scipy.sparse import coo_matrix
@@ -219,10 +220,13 @@ def circuit_islands(circuit: Circuit, tech: Tech) -> Islands:
     devs = circuit.devices
     n = len(devs)
     roles = Topology._special_roles(circuit, tech)
-    ids: dict[str, int] = {}
-    put = ids.setdefault
-    term = np.fromiter((put(t, len(ids)) for d in devs for t in (d.drain, d.gate, d.source)),
-                       dtype=np.int64, count=3 * n).reshape(-1, 3)
+    ids: dict[str, int] = {name: k for k, name in enumerate(circuit.nets)}
+    flat = [t for d in devs for t in (d.drain, d.gate, d.source)]
+    term = np.fromiter(map(ids.get, flat, repeat(-1)), dtype=np.int64, count=3 * n)
+    for k in np.flatnonzero(term < 0).tolist():  # terminals the circuit lists no net for
+        term[k] = ids.setdefault(flat[k], len(ids))
+    del flat
+    term = term.reshape(-1, 3)
     names = list(ids)
     m = len(names)
     types: dict[str, int] = {}

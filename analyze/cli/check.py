@@ -6,8 +6,8 @@ from __future__ import annotations
 import sys
 
 from analyze.cli.output import OutputSet, check_outputs
-from analyze.report.json_report import (couplings_json, devices_json, dumps, findings_json, header, nets_json,
-                                        stage_json)
+from analyze.report.json_report import (couplings_json, devices_json, dump_pieces, findings_json, header,
+                                        nets_json, stage_json)
 from analyze.report.text import check_header, stage_block
 from analyze.search.analysis import analyse_circuit
 
@@ -105,7 +105,7 @@ def _check(args, tech, constraints) -> int:
         sys.stdout.write(text)
     outputs = OutputSet()
     if args.json:  # the report is built and serialised only when asked for
-        outputs.add(args.json, dumps(check_report(circuit, tech, recognition, results)))
+        outputs.add(args.json, dump_pieces(check_report(circuit, tech, recognition, results)))
     if html is not None:
         outputs.add(args.html, html)
     outputs.commit()

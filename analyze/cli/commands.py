@@ -10,7 +10,7 @@ import sys
 
 from analyze.cli.check import warn
 from analyze.cli.output import OutputSet, check_outputs
-from analyze.report.json_report import dumps, extract_report
+from analyze.report.json_report import dump_pieces, extract_report
 from extract.techfile import load_tech
 
 __all__ = ["run_extract", "run_check", "run_compare", "run_characterize", "run_demo"]
@@ -53,7 +53,7 @@ def run_extract(args) -> int:
     circuit = extract_layout(args.layout, tech, args.cell)
     texts = {}
     if args.json:
-        texts[args.json] = dumps(extract_report(circuit, tech))
+        texts[args.json] = dump_pieces(extract_report(circuit, tech))
     if args.spice:
         texts[args.spice] = write_spice(circuit, tech)
     if args.spef:

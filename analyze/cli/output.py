@@ -174,8 +174,12 @@ class OutputSet:
     def __init__(self):
         self._items: list[tuple[str, str]] = []
 
-    def add(self, path: str | None, text: str) -> None:
-        """Queue ``text`` for ``path`` (None: nothing; ``"-"``: stdout)."""
+    def add(self, path: str | None, text) -> None:
+        """Queue ``text`` for ``path`` (None: nothing; ``"-"``: stdout).
+
+        ``text`` is a string, or an iterable of strings written one after
+        the other (a big report made while written: an error while making
+        it fails the commit like a failed write)."""
         if path:
             self._items.append((path, text))
 
@@ -196,13 +200,14 @@ class OutputSet:
                 os.umask(mask)
                 os.chmod(tmp, 0o666 & ~mask)
                 with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-                    fh.write(text)
+                    _write(fh, text)
             for path, text in self._items:  # 2. standard output and devices: cannot be taken back
                 current = path
                 if path == "-":
-                    sys.stdout.write(text)
+                    sys.stdout.write(text if isinstance(text, str) else "".join(text))  # whole, then written
                     sys.stdout.flush()
                 elif _special(path):
+                    text = text if isinstance(text, str) else "".join(text)
                     with open(path, "w", encoding="utf-8", newline="\n") as fh:
                         fh.write(text)
             for tmp, real, path in temps:  # 3. the renames
@@ -243,3 +248,12 @@ def _remove(path: str) -> None:
         os.unlink(path)
     except OSError:
         pass
+
+
+def _write(fh, text) -> None:
+    """Write a string, or the strings of an iterable one by one."""
+    if isinstance(text, str):
+        fh.write(text)
+        return
+    for piece in text:
+        fh.write(piece)

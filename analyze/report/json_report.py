@@ -7,7 +7,6 @@ files.
 
 from __future__ import annotations
 
-import json
 import os
 import math
 
@@ -15,18 +14,23 @@ from extract.circuit import Circuit
 from extract.errors import InputError
 from extract.writers.numbers import tool_version
 
+from analyze.report.json_text import Rows, json_pieces
+
 __all__ = ["input_name", 
     "rounded",
     "loc_json",
     "header",
     "nets_json",
     "devices_json",
+    "net_json",
+    "device_json",
     "findings_json",
     "extract_report",
     "worst_case_json",
     "flags_json",
     "stage_json",
     "dumps",
+    "dump_pieces",
 ]
 
 
@@ -65,44 +69,50 @@ def header(cell: str, vdd: float) -> dict:
     return {"tool": "dynshare", "version": tool_version(), "cell": cell, "vdd": rounded(vdd)}
 
 
-def nets_json(circuit: Circuit) -> list[dict]:
-    out = []
-    for net in circuit.nets.values():
-        out.append(
-            {
-                "name": net.name,
-                "role": net.role,
-                "cap_ff": rounded(net.cap_ff),
-                "parts_ff": {k: rounded(v) for k, v in net.cap.as_dict().items()},
-                "location_um": loc_json(net.location_um),
-                "junctions": {
-                    t: {"area_um2": rounded(j.area_um2), "field_perimeter_um": rounded(j.field_perimeter_um),
-                        "gate_perimeter_um": rounded(j.gate_perimeter_um)}
-                    for t, j in sorted(net.junctions.items())
-                },
-            }
-        )
-    return out
+def net_json(net) -> dict:
+    """One element of ``nets[]``."""
+    return {
+        "name": net.name,
+        "role": net.role,
+        "cap_ff": rounded(net.cap_ff),
+        "parts_ff": {k: rounded(v) for k, v in net.cap.as_dict().items()},
+        "location_um": loc_json(net.location_um),
+        "junctions": {
+            t: {"area_um2": rounded(j.area_um2), "field_perimeter_um": rounded(j.field_perimeter_um),
+                "gate_perimeter_um": rounded(j.gate_perimeter_um)}
+            for t, j in sorted(net.junctions.items())
+        },
+    }
 
 
-def devices_json(circuit: Circuit) -> list[dict]:
-    return [
-        {
-            "name": d.name,
-            "type": d.type,
-            "drain": d.drain,
-            "gate": d.gate,
-            "source": d.source,
-            "w_um": rounded(d.w_um),
-            "l_um": rounded(d.l_um),
-            "ad_um2": rounded(d.ad_um2),
-            "as_um2": rounded(d.as_um2),
-            "pd_um": rounded(d.pd_um),
-            "ps_um": rounded(d.ps_um),
-            "location_um": loc_json(d.location_um),
-        }
-        for d in circuit.devices
-    ]
+def device_json(d) -> dict:
+    """One element of ``devices[]``."""
+    return {
+        "name": d.name,
+        "type": d.type,
+        "drain": d.drain,
+        "gate": d.gate,
+        "source": d.source,
+        "w_um": rounded(d.w_um),
+        "l_um": rounded(d.l_um),
+        "ad_um2": rounded(d.ad_um2),
+        "as_um2": rounded(d.as_um2),
+        "pd_um": rounded(d.pd_um),
+        "ps_um": rounded(d.ps_um),
+        "location_um": loc_json(d.location_um),
+    }
+
+
+def nets_json(circuit: Circuit) -> Rows:
+    """``nets[]``, made element by element while written (:class:`Rows`)."""
+    nets = circuit.nets
+    return Rows(lambda: map(net_json, nets.values()), len(nets))
+
+
+def devices_json(circuit: Circuit) -> Rows:
+    """``devices[]``, made element by element while written (:class:`Rows`)."""
+    devices = circuit.devices
+    return Rows(lambda: map(device_json, devices), len(devices))
 
 
 def couplings_json(circuit: Circuit) -> list[dict]:
@@ -206,7 +216,8 @@ def simulation_json(sims) -> list[dict]:
 
 
 def dumps(report: dict) -> str:
-    """JSON text with a trailing newline, keys in insertion order.
+    """JSON text with a trailing newline, keys in insertion order
+    (``json.dumps(indent=2)``'s text; :class:`Rows` written as lists).
 
     A NaN or an infinity is not JSON: it raises :class:`InputError` naming
     the key path (the analysis refuses such numbers earlier, naming their
@@ -219,8 +230,15 @@ def dumps(report: dict) -> str:
     ...
     extract.errors.InputError: report: stages[0].margin_v: is nan, not a finite number; no report is written
     """
+    return "".join(dump_pieces(report))
+
+
+def dump_pieces(report: dict):
+    """:func:`dumps` in pieces (:func:`analyze.report.json_text.json_pieces`),
+    for writing a big report without holding its text; a non-finite
+    number raises :class:`InputError` as in :func:`dumps`."""
     try:
-        return json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+        yield from json_pieces(report)
     except ValueError:  # only a non-finite float: find where, for the message
         _refuse_non_finite(report, "")
         raise
@@ -235,5 +253,5 @@ def _refuse_non_finite(value, path: str) -> None:
             raise InputError("report", f"is {item}, not a finite number; no report is written", where or "report")
         if isinstance(item, dict):
             stack.extend((v, f"{where}.{k}" if where else str(k)) for k, v in item.items())
-        elif isinstance(item, (list, tuple)):
+        elif isinstance(item, (list, tuple, Rows)):
             stack.extend((v, f"{where}[{i}]") for i, v in enumerate(item))

@@ -13,6 +13,7 @@ import sys
 
 import pytest
 from cli_run import run_dynshare as run
+from local_cluster import scheduler  # noqa: F401  (the fixture)
 
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..", ".."))
 GDS = os.path.join(ROOT, "sample_layouts", "dsk18_cells.gds")

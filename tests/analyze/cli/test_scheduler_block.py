@@ -21,6 +21,7 @@ import socket
 
 import pytest
 from cli_run import run_dynshare as run
+from local_cluster import scheduler  # noqa: F401  (the fixture)
 
 from analyze.cli.library import work_chunks
 from analyze.search.constraints import load_constraints

@@ -1,12 +1,16 @@
-"""Fixtures of the ``--scheduler`` tests: a Dask distributed cluster on this
+"""Fixture of the ``--scheduler`` tests: a Dask distributed cluster on this
 machine (two worker processes of one thread each), started by the test
-module that asks for it and stopped after it."""
+module that asks for it and stopped after it.  A test module takes it with
+``from local_cluster import scheduler`` (a helper module, not a conftest:
+two conftest.py files would clash under ``--doctest-modules``)."""
 
 import os
 
 import pytest
 
-ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..", ".."))
+__all__ = ["scheduler"]
+
+ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", ".."))
 
 
 @pytest.fixture(scope="module")

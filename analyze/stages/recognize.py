@@ -112,7 +112,9 @@ def find_stages(circuit: Circuit, tech: Tech, islands: bool | None = None) -> Re
         from analyze.stages.islands import circuit_islands
 
         isl = circuit_islands(circuit, tech) if islands or len(circuit.devices) >= ISLANDS_FROM else None
-        if isl is not None and (islands or isl.largest() * len(isl.keys) <= len(circuit.devices) // 2):
+        # (an island of 2M devices or more would need placeholder ranks of 8 digits: whole circuit)
+        if isl is not None and isl.largest() < 2_000_000 and (
+                islands or isl.largest() * len(isl.keys) <= len(circuit.devices) // 2):
             from analyze.stages.by_islands import find_stages_by_islands
 
             return find_stages_by_islands(isl, tech)

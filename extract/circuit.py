@@ -269,9 +269,29 @@ class Circuit:
             raise KeyError(name)
         return d
 
-    def devices_on(self, net: str) -> list[Device]:
-        """Devices with a channel terminal (drain or source) on ``net``."""
-        return [d for d in self.devices if d.drain == net or d.source == net]
+    def devices_on(self, *nets: str) -> list[Device]:
+        """Devices with a channel terminal (drain or source) on any of
+        ``nets``, each once, in circuit order; after the first call the
+        cost is that of the devices found (an index by net, made again
+        when the device list is replaced or changes length).
+
+        >>> c = Circuit("c", {}, [Device("M1", "nmos", "a", "g", "b", 1, 0.2),
+        ...                       Device("M2", "nmos", "b", "g", "b", 1, 0.2)])
+        >>> [d.name for d in c.devices_on("b")], c.devices_on("g"), [d.name for d in c.devices_on("b", "a")]
+        (['M1', 'M2'], [], ['M1', 'M2'])
+        """
+        got = self.__dict__.get("_channel_index")
+        if got is None or got[0] is not self.devices or got[1] != len(self.devices):
+            index: dict[str, list[int]] = {}
+            for k, d in enumerate(self.devices):
+                index.setdefault(d.drain, []).append(k)
+                if d.source != d.drain:
+                    index.setdefault(d.source, []).append(k)
+            got = (self.devices, len(self.devices), index)
+            self.__dict__["_channel_index"] = got
+        devices, index = self.devices, got[2]
+        at = sorted({k for n in nets for k in index.get(n, ())})
+        return [devices[k] for k in at]
 
     def nets_with_role(self, role: str) -> list[str]:
         return [n.name for n in self.nets.values() if n.role == role]

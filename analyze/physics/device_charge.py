@@ -63,9 +63,9 @@ class GateLevels:
 
 def table_devices(circuit, stage) -> list:
     """Devices whose charge comes from the tables: every device with a
-    source/drain on the dynamic node or an internal node."""
-    inner = {stage.dynamic_node, *stage.internal_nodes}
-    return [d for d in circuit.devices if d.drain in inner or d.source in inner]
+    source/drain on the dynamic node or an internal node, in circuit order
+    (from the circuit's index of devices by channel net)."""
+    return circuit.devices_on(stage.dynamic_node, *stage.internal_nodes)
 
 
 def gate_levels(circuit, stage, tech, inputs: dict, late: set, devices=None) -> GateLevels:

@@ -57,8 +57,13 @@ class Rows:
 _KEYS: dict[str, str] = {}
 
 
-def _key(k: str) -> str:
-    """An encoded key, remembered (reports repeat a few dozen keys)."""
+def _key(k) -> str:
+    """An encoded key and its colon; string keys remembered (reports
+    repeat a few dozen).  Another key is turned into a string as
+    ``json.dumps`` turns it (numbers, booleans, None; anything else raises
+    as there)."""
+    if type(k) is not str:
+        return json.dumps({k: None}, allow_nan=False)[1:-7] + ": "
     got = _KEYS.get(k)
     if got is None:
         got = encode_basestring(k) + ": "
@@ -89,8 +94,6 @@ def _encode(o, pad: str) -> str:
             return "{}"
         parts = []
         for k, v in o.items():
-            if type(k) is not str:  # keys json.dumps would convert: let it
-                return json.dumps(o, indent=2, ensure_ascii=False, allow_nan=False).replace("\n", "\n" + pad)
             tv = type(v)
             parts.append(_key(k) + (encode_basestring(v) if tv is str else _float(v) if tv is float
                                     else _encode(v, inner)))
@@ -146,9 +149,6 @@ def json_pieces(report: dict):
         return
     first = True
     for key, value in report.items():
-        if type(key) is not str:  # as json.dumps would convert it
-            key = json.dumps({key: 0})[1:-4]
-            key = json.loads(key)
         head = ("{\n  " if first else ",\n  ") + _key(key)
         first = False
         if isinstance(value, (list, tuple, Rows)) and len(value):

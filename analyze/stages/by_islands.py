@@ -27,8 +27,8 @@ from __future__ import annotations
 from extract.errors import Finding
 
 from analyze.stages.clocks import Candidate, decide_clocks, find_candidates
-from analyze.stages.islands import Islands
-from analyze.stages.side_stages import side_stages
+from analyze.stages.islands import Islands, placeholder_net
+from analyze.stages.side_stages import recognition_of, side_stages
 from analyze.stages.stage import Receiver, Recognition, Stage
 from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Topology
@@ -61,26 +61,19 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
     a key), plus renaming every island's candidates, stages and findings.
     """
     circuit = isl.circuit
-    subs: dict[int, tuple] = {}
-
-    def sub(k: int):
-        got = subs.get(k)
-        if got is None:
-            topo = Topology(isl.placeholder(k), tech)
-            static = StaticNets(topo)
-            got = subs[k] = (topo, static, find_candidates(topo, static))
-        return got
-
+    subs = []  # per key: the placeholder circuit's topology, staticness test and candidates
+    for k in range(len(isl.keys)):
+        topo = Topology(isl.placeholder(k), tech)
+        static = StaticNets(topo)
+        subs.append((topo, static, find_candidates(topo, static)))
     candidates = []
     key_of = isl.key_of.tolist()
-    for k in range(len(isl.keys)):
-        sub(k)
     # When every candidate is gated by a declared clock, the clock decision
     # reads none of them (each rule only adds clocks for undeclared gates):
     # they need not be renamed.
-    needed = any(subs[k][0].role(c.gate) != "clock" for k in subs for c in subs[k][2])
+    needed = any(topo.role(c.gate) != "clock" for topo, _, found in subs for c in found)
     for i, k in enumerate(key_of if needed else ()):
-        found = sub(k)[2]
+        found = subs[k][2]
         if found:
             rn = isl.renamer(i)
             candidates += [Candidate(c.side, rn(c.node), rn(c.gate), tuple(map(rn, c.precharge)),
@@ -95,10 +88,10 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
         if got is None:
             got = []
             for i in isl.islands_with(net):
-                topo = sub(key_of[i])[0]
+                topo = subs[key_of[i]][0]
                 rn = isl.renamer(i)
                 got += [Receiver(rn(r.nmos), rn(r.pmos), rn(r.output))
-                        for r in topo.receivers(f"~N{isl.rank(i, net):07d}")]
+                        for r in topo.receivers(placeholder_net(isl.rank(i, net)))]
             got = seen_receivers[net] = sorted(got, key=lambda r: r.output)
         return got
 
@@ -117,8 +110,8 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
         pair = (key_of[i], tuple(sorted(set(clock_ranks[i]))))
         got = built.get(pair)
         if got is None:
-            topo, static, _ = sub(pair[0])
-            clocks = {f"~N{r:07d}" for r in pair[1]}
+            topo, static, _ = subs[pair[0]]
+            clocks = {placeholder_net(r) for r in pair[1]}
             got = []
             for side in SIDES:
                 found, notes = side_stages(topo, side, clocks, static, _place)
@@ -130,12 +123,7 @@ def find_stages_by_islands(isl: Islands, tech) -> Recognition:
             if notes:
                 rn, topo = isl.renamer(i), subs[pair[0]][0]
                 findings[side.polarity] += [_renamed_finding(f, rn, topo, circuit) for f in notes]
-    stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
-    notes = list(inference.findings)
-    for side in SIDES:
-        notes += sorted(findings[side.polarity], key=Finding.text)
-    return Recognition(stages=stages, findings=notes, clocks=inference.clocks,
-                       clock_inferred=inference.inferred, clock_note=inference.note)
+    return recognition_of(inference, stages, findings)
 
 
 def _location(circuit, net: str | None, device: str | None):

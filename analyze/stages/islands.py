@@ -45,6 +45,7 @@ A circuit with no devices has no islands:
 
 from __future__ import annotations
 
+import bisect
 import re
 from itertools import repeat
 
@@ -55,7 +56,7 @@ from scipy.sparse.csgraph import connected_components
 from extract.circuit import Circuit, Device, Net
 from extract.tech import Tech
 
-__all__ = ["Islands", "circuit_islands", "placeholder_circuit", "PLACEHOLDER"]
+__all__ = ["Islands", "circuit_islands", "placeholder_circuit", "placeholder_net", "PLACEHOLDER"]
 
 #: A placeholder name: ``~N`` (net) or ``~D`` (device) and a 7-digit rank,
 #: so that placeholders sort in rank order and never occur in our messages.
@@ -64,7 +65,12 @@ _ROLE_CODES = {"signal": 0, "power": 1, "ground": 2, "clock": 3}
 _ROLE_NAMES = {v: k for k, v in _ROLE_CODES.items()}
 
 
-def _net(rank: int) -> str:
+def placeholder_net(rank: int) -> str:
+    """The placeholder name of the net of rank ``rank``.
+
+    >>> placeholder_net(12)
+    '~N0000012'
+    """
     return f"~N{rank:07d}"
 
 
@@ -124,8 +130,6 @@ class Islands:
     def rank(self, island: int, net: str) -> int:
         """The rank of ``net`` among the island's nets (ValueError if absent)."""
         names = self.names(island)
-        import bisect
-
         k = bisect.bisect_left(names, net)
         if k == len(names) or names[k] != net:
             raise ValueError(net)
@@ -182,8 +186,9 @@ def placeholder_circuit(rows, types, roles) -> Circuit:
     >>> c.devices[0].drain, c.devices[0].source, c.nets["~N0000002"].role
     ('~N0000001', '~N0000002', 'ground')
     """
-    nets = {_net(j): Net(_net(j), role=_ROLE_NAMES[int(r)]) for j, r in enumerate(roles)}
-    devices = [Device(_device(int(r[4])), t, _net(int(r[1])), _net(int(r[2])), _net(int(r[3])), 1.0, 1.0)
+    nets = {placeholder_net(j): Net(placeholder_net(j), role=_ROLE_NAMES[int(r)]) for j, r in enumerate(roles)}
+    net = placeholder_net
+    devices = [Device(_device(int(r[4])), t, net(int(r[1])), net(int(r[2])), net(int(r[3])), 1.0, 1.0)
                for r, t in zip(rows, types)]
     return Circuit("island", nets, devices)
 

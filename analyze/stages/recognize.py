@@ -17,7 +17,7 @@ from extract.errors import Finding
 from extract.tech import Tech
 
 from analyze.stages.clocks import infer_clocks
-from analyze.stages.side_stages import side_stages
+from analyze.stages.side_stages import recognition_of, side_stages
 from analyze.stages.stage import Recognition, Stage
 from analyze.stages.static import StaticNets
 from analyze.stages.topology import SIDES, Topology
@@ -123,16 +123,8 @@ def find_stages(circuit: Circuit, tech: Tech, islands: bool | None = None) -> Re
     inference = infer_clocks(topo, static=static)
     clocks = set(inference.clocks)
     stages: list[Stage] = []
-    findings = []
+    notes: dict[str, list[Finding]] = {}
     for side in SIDES:
-        found, notes = side_stages(topo, side, clocks, static)
+        found, notes[side.polarity] = side_stages(topo, side, clocks, static)
         stages += found
-        findings += sorted(notes, key=Finding.text)
-    stages.sort(key=lambda s: (s.dynamic_node, s.polarity))
-    return Recognition(
-        stages=stages,
-        findings=list(inference.findings) + findings,
-        clocks=inference.clocks,
-        clock_inferred=inference.inferred,
-        clock_note=inference.note,
-    )
+    return recognition_of(inference, stages, notes)

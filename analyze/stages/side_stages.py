@@ -10,11 +10,11 @@ from __future__ import annotations
 
 from extract.errors import Finding
 
-from analyze.stages.stage import Stage
+from analyze.stages.stage import Recognition, Stage
 from analyze.stages.static import StaticNets
-from analyze.stages.topology import Side, Topology
+from analyze.stages.topology import SIDES, Side, Topology
 
-__all__ = ["side_stages"]
+__all__ = ["side_stages", "recognition_of"]
 
 
 class _SideContext:
@@ -217,3 +217,27 @@ def _orphan_footers(ctx: _SideContext) -> list[Finding]:
             )
         )
     return out
+
+
+def recognition_of(inference, stages: list[Stage], notes: dict[str, list[Finding]]) -> Recognition:
+    """The :class:`Recognition` of the stages and findings of both polarities.
+
+    Parameters
+    ----------
+    inference : analyze.stages.clocks.ClockInference
+    stages : list of Stage
+    notes : dict of str to list of Finding
+        Findings per polarity (``"n"``, ``"p"``).
+
+    Returns
+    -------
+    Recognition
+        Stages sorted by dynamic node, then polarity; findings: the clock
+        inference's, then each polarity's (n, then p) sorted by text, so
+        that the order does not depend on how the circuit was visited.
+    """
+    findings = list(inference.findings)
+    for side in SIDES:
+        findings += sorted(notes.get(side.polarity, ()), key=Finding.text)
+    return Recognition(stages=sorted(stages, key=lambda s: (s.dynamic_node, s.polarity)), findings=findings,
+                       clocks=inference.clocks, clock_inferred=inference.inferred, clock_note=inference.note)

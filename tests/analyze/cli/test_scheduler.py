@@ -4,7 +4,7 @@ cluster (here a local one, started by the test, two worker processes).
 Source of the expectations: the single-machine run (``--jobs 1``) is the
 reference; the JSON report with ``--scheduler`` must be byte-identical to it,
 and so must the exit status, the table and the ``error:`` line.  The cluster
-is the ``scheduler`` fixture (conftest.py)."""
+is the ``scheduler`` fixture (tests/helpers/local_cluster.py)."""
 
 import os
 import socket

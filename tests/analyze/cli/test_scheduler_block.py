@@ -1,6 +1,7 @@
 """``check BLOCK --cell TOP --scheduler ADDRESS``: the distinct stage contexts
 of one block analysed on a Dask distributed cluster (the ``scheduler``
-fixture, conftest.py: a local cluster of two worker processes).
+fixture, tests/helpers/local_cluster.py: a local cluster of two worker
+processes).
 
 Sources of the expectations:
 

@@ -30,7 +30,7 @@ CAP_PART_NAMES = (
 )
 
 
-@dataclass(slots=True)
+@dataclass(slots=True, frozen=True)
 class CapParts:
     """Zero-bias capacitance of a net to ground, split by origin (fF).
 
@@ -89,7 +89,7 @@ class CapParts:
         )
 
 
-@dataclass(slots=True)
+@dataclass(slots=True, frozen=True)
 class JunctionGeometry:
     """Source/drain junction geometry of one net for one device type.
 

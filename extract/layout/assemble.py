@@ -150,10 +150,10 @@ def assemble(placements, tech: Tech, cell: str, path: str, joins=None, wire_fix=
     nets: dict[str, Net] = {}  # made in name order (``distinct`` is sorted)
     role_of = tech.role_of
     net_list = []
-    parts = _floats(sums)
+    parts = row_objects(sums, CapParts)  # equal parts: one (frozen) record
     points = _floats(g_points[loc], 6)
-    for name, six, xy in zip(distinct.tolist(), zip(*[iter(parts)] * 6), zip(*[iter(points)] * 2)):
-        net = nets[name] = Net(name, role_of(name), CapParts(*six), location_um=xy)
+    for name, cap, xy in zip(distinct.tolist(), parts, zip(*[iter(points)] * 2)):
+        net = nets[name] = Net(name, role_of(name), cap, location_um=xy)
         net_list.append(net)
     for g, texts in enumerate(g_texts):
         if texts:
@@ -262,50 +262,94 @@ def _add_junctions(placements, base, per_unit_name, nets: list) -> None:
     """Sum every placed unit's junction geometry into its net.
 
     Per net and device type the parts are added in the order placement,
-    instance, unit (``numpy.add.at`` is unbuffered and goes in index
-    order), from 0, as a running ``JunctionGeometry`` sum would; the
-    types of a net's dict come in the order first met."""
+    instance, unit (``numpy.bincount`` adds in index order), from 0, as a
+    running ``JunctionGeometry`` sum would; the types of a net's dict come
+    in the order first met.  Equal geometries share one (frozen) record."""
     idx, kinds, vals = [], [], []
+    names: dict = {}  # device type -> code, in the order first met
     for (u, off), b in zip(placements, base):
-        rows = [(k, t, (g.area_um2, g.field_perimeter_um, g.gate_perimeter_um))
+        rows = [(k, names.setdefault(t, len(names)), (g.area_um2, g.field_perimeter_um, g.gate_perimeter_um))
                 for k, jn in enumerate(u.junctions) if jn for t, g in jn.items()]
         if not rows:
             continue
         ks = np.array([k for k, _, _ in rows], dtype=np.intp)
         starts = int(b) + np.arange(len(off), dtype=np.intp) * u.n
         idx.append(per_unit_name[(starts[:, None] + ks[None, :]).ravel()])
-        kinds.append(np.tile(np.array([t for _, t, _ in rows], dtype=object), len(off)))
+        kinds.append(np.tile(np.array([t for _, t, _ in rows], dtype=np.intp), len(off)))
         vals.append(np.tile(np.array([v for _, _, v in rows], dtype=float), (len(off), 1)))
     if not idx:
         return
     idx, kinds, vals = np.concatenate(idx), np.concatenate(kinds), np.concatenate(vals)
-    order = np.arange(len(idx))
-    per_type = []
-    for t in dict.fromkeys(kinds.tolist()):
-        sel = kinds == t
-        acc = np.zeros((len(nets), 3))
-        np.add.at(acc, idx[sel], vals[sel])
-        first = np.full(len(nets), len(idx))
-        np.minimum.at(first, idx[sel], order[sel])
-        per_type.append((t, acc, first))
-    firsts = np.stack([f for _, _, f in per_type])
-    has = firsts < len(idx)
+    n, types = len(nets), list(names)
+    firsts = np.full((len(types), n), len(idx))
     geos = []
-    for j, (_, acc, _) in enumerate(per_type):
-        rows = np.flatnonzero(has[j])
-        three = _floats(acc[rows])
-        geo = [None] * len(nets)
-        for k, a, f, g in zip(rows.tolist(), three[0::3], three[1::3], three[2::3]):
-            geo[k] = JunctionGeometry(a, f, g)
+    for j in range(len(types)):
+        sel = np.flatnonzero(kinds == j)
+        on = idx[sel]
+        acc = np.stack([np.bincount(on, weights=vals[sel, c], minlength=n) for c in range(3)], axis=1)
+        np.minimum.at(firsts[j], on, sel)
+        rows = np.flatnonzero(firsts[j] < len(idx))
+        geo = [None] * n
+        for k, g in zip(rows.tolist(), row_objects(acc[rows], JunctionGeometry)):
+            geo[k] = g
         geos.append(geo)
-    if len(per_type) == 1:
-        t, geo = per_type[0][0], geos[0]
-        for k in np.flatnonzero(has[0]).tolist():
+    has = firsts < len(idx)
+    count = has.sum(axis=0)
+    for j, t in enumerate(types):  # one type on the net: its dict at once
+        geo = geos[j]
+        for k in np.flatnonzero(has[j] & (count == 1)).tolist():
             nets[k].junctions = {t: geo[k]}
-        return
-    for k in np.flatnonzero(has.any(axis=0)).tolist():
-        seen = sorted((int(firsts[j, k]), j) for j in range(len(per_type)) if has[j, k])
-        nets[k].junctions = {per_type[j][0]: geos[j][k] for _, j in seen}
+    multi = np.flatnonzero(count > 1)
+    if len(multi):  # several types: in the order first met
+        order = np.argsort(firsts[:, multi], axis=0, kind="stable").T.tolist()
+        for k, js in zip(multi.tolist(), order):
+            nets[k].junctions = {types[j]: geos[j][k] for j in js if geos[j][k] is not None}
+
+
+def row_objects(values, make) -> list:
+    """``make(*row)`` for each row of ``values`` (floats), one object per
+    distinct row (bit pattern): ``make``'s objects must be values (frozen),
+    as they are shared.
+
+    Parameters
+    ----------
+    values : array_like (n, k)
+    make : callable
+
+    Returns
+    -------
+    list
+        n objects; rows with equal bits get the same one.
+
+    Notes
+    -----
+    Rows are grouped by a 64-bit hash of their bits (one sort of n
+    integers) and the grouping is checked against the bits; on a
+    collision the rows themselves are sorted (``numpy.unique`` with
+    ``axis=0``).  O(n log n) in numpy, ``make`` called once per distinct row.
+
+    Examples
+    --------
+    >>> rows = row_objects([[1.0, 2.0], [1.0, 2.0], [0.0, 2.0]], complex)
+    >>> rows, rows[0] is rows[1]
+    ([(1+2j), (1+2j), 2j], True)
+    >>> row_objects(np.empty((0, 2)), complex)
+    []
+    """
+    v = np.ascontiguousarray(values, dtype=float)
+    if not len(v):
+        return []
+    bits = v.view(np.uint64).reshape(len(v), -1)
+    h = np.zeros(len(v), dtype=np.uint64)
+    for c in range(bits.shape[1]):  # wraps modulo 2**64
+        h = h * np.uint64(0x100000001B3) ^ bits[:, c]
+    _, first, inverse = np.unique(h, return_index=True, return_inverse=True)
+    inverse = inverse.ravel()
+    if not np.array_equal(bits[first][inverse], bits):  # a collision: sort the rows
+        _, first, inverse = np.unique(bits, axis=0, return_index=True, return_inverse=True)
+        inverse = inverse.ravel()
+    made = [make(*r) for r in v[first].tolist()]
+    return list(map(made.__getitem__, inverse.tolist()))
 
 
 def _floats(values, digits: int | None = None) -> list:

@@ -269,6 +269,18 @@ class Circuit:
             raise KeyError(name)
         return d
 
+    def devices_by_name(self) -> dict[str, Device]:
+        """Device name -> device (the index :meth:`device` uses), made
+        again when the device list changed length; read it, do not change
+        it.  For many look-ups at once (a dict look-up each; a name it
+        lacks is worth asking :meth:`device`, which also sees devices
+        renamed in place)."""
+        index = self.__dict__.get("_device_index")
+        if index is None or len(index) != len(self.devices):
+            index = {dev.name: dev for dev in self.devices}
+            self.__dict__["_device_index"] = index
+        return index
+
     def devices_on(self, *nets: str) -> list[Device]:
         """Devices with a channel terminal (drain or source) on any of
         ``nets``, each once, in circuit order; after the first call the

@@ -244,5 +244,9 @@ class Tech:
         >>> Tech("t", 1.8, NetRoles(("vdd",), ("VSS",), ("CLK",)), {}, {}).role_of("VDD")
         'power'
         """
-        nets = self.nets
-        return _roles(tuple(nets.power), tuple(nets.ground), tuple(nets.clock)).get(net_name.upper(), "signal")
+        table = self.__dict__.get("_role_table")  # kept on the (frozen) Tech: role_of runs per net
+        if table is None:
+            nets = self.nets
+            table = _roles(tuple(nets.power), tuple(nets.ground), tuple(nets.clock))
+            object.__setattr__(self, "_role_table", table)
+        return table.get(net_name.upper(), "signal")

@@ -129,8 +129,8 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
     if secondary:
         dev_names += secondary.values()
     dev_names = sorted(set(dev_names))
-    device = circuit.device
-    devs = [device(n) for n in dev_names]
+    index = circuit.devices_by_name()
+    devs = [index.get(n) or circuit.device(n) for n in dev_names]
     net_set = {stage.dynamic_node, stage.clock, stage.supply, stage.rail, stage.footer_node, *stage.inputs,
                *stage.internal_nodes, *secondary}
     net_set.discard(None)
@@ -159,8 +159,14 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
             continue
         c = net.cap
         jn = net.junctions
-        junctions = tuple(sorted((t, pack3(j.area_um2, j.field_perimeter_um, j.gate_perimeter_um))
-                                 for t, j in jn.items())) if jn else ()
+        if not jn:
+            junctions = ()
+        elif len(jn) == 1:
+            ((t, j),) = jn.items()
+            junctions = ((t, pack3(j.area_um2, j.field_perimeter_um, j.gate_perimeter_um)),)
+        else:
+            junctions = tuple(sorted((t, pack3(j.area_um2, j.field_perimeter_um, j.gate_perimeter_um))
+                                     for t, j in jn.items()))
         row = (net.role, pack6(c.junction_area, c.junction_sidewall, c.junction_gate_edge,
                                c.wire, c.gate, c.overlap), junctions)
         if net.role != "signal":  # rails and clocks: in every stage, made once (few, so kept)

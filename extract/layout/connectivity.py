@@ -237,18 +237,21 @@ def names_from_texts(texts, net_points, role_of):
         return (role_of(text) == "signal", text)
 
     chosen: list[str | None] = [None] * k_nets
-    for k in range(k_nets):
-        if texts[k]:
-            ordered = sorted(texts[k], key=preference)
+    for k, tx in enumerate(texts):
+        if not tx:
+            continue
+        if len(tx) == 1:  # most nets: one text, nothing to choose
+            (chosen[k],) = tx
+        else:
+            ordered = sorted(tx, key=preference)
             chosen[k] = ordered[0]
-            if len(ordered) > 1:
-                x, y = net_points[k]
-                findings.append(
-                    Finding(
-                        "labels " + ", ".join(repr(t) for t in ordered) + f" are on one net; it is named {ordered[0]!r}",
-                        (float(x), float(y)),
-                    )
+            x, y = net_points[k]
+            findings.append(
+                Finding(
+                    "labels " + ", ".join(repr(t) for t in ordered) + f" are on one net; it is named {ordered[0]!r}",
+                    (float(x), float(y)),
                 )
+            )
     # by point rounded to 1e-6 µm (y, then x), then k; numpy's rounding, as
     # round() of the array's numpy floats gives
     pts = np.asarray(net_points, dtype=float).reshape(-1, 2)
@@ -269,10 +272,12 @@ def names_from_texts(texts, net_points, role_of):
         used.add(text)
         suffix = 2
         for k in nets[1:]:
-            while f"{text}_{suffix}" in used or f"{text}_{suffix}" in by_text:
+            name = f"{text}_{suffix}"
+            while name in used or name in by_text:
                 suffix += 1
-            names[k] = f"{text}_{suffix}"
-            used.add(names[k])
+                name = f"{text}_{suffix}"
+            names[k] = name
+            used.add(name)
             suffix += 1
         x, y = net_points[nets[0]]
         findings.append(
@@ -282,9 +287,11 @@ def names_from_texts(texts, net_points, role_of):
     for k in order:
         if names[k]:
             continue
-        while f"net{counter}" in used or f"net{counter}" in by_text:
+        name = f"net{counter}"
+        while name in used or name in by_text:
             counter += 1
-        names[k] = f"net{counter}"
-        used.add(names[k])
+            name = f"net{counter}"
+        names[k] = name
+        used.add(name)
         counter += 1
     return names, findings

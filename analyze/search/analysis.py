@@ -53,7 +53,7 @@ from dataclasses import dataclass, field, replace
 from typing import Iterator
 
 from analyze.search.constraints import Constraints, check_constraints_apply, stage_blocks
-from analyze.search.contexts import StageContexts
+from analyze.search.contexts import MODELS_UNUSABLE, StageContexts
 from analyze.search.flags import Flag, find_flags
 from analyze.search.patterns import bind_blocks, count_counted, iter_counted
 from analyze.physics.sharing import SharingModel, WorstCase, build_model
@@ -220,7 +220,7 @@ def analyze_stage(
         except InputError as exc:
             # the library cannot simulate these devices (outside its bins, ...):
             # the lumped model stands, and the report says why
-            physics_note = f"foundry models not usable for this stage ({exc.line()}); level-1 numbers used"
+            physics_note = f"{MODELS_UNUSABLE} ({exc.line()}); level-1 numbers used"
         else:
             found_f = solve_candidates(prep, circuit, stage, tech, constraints, candidates)
             if found_f is not None:

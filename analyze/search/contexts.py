@@ -24,6 +24,11 @@ and constraints fixed for the life of a :class:`StageContexts`):
   else the tech file's by name) and its capacitance parts and junction
   geometry per device type (bit for bit; a net missing from the circuit
   counts as one with no capacitance, which the analysis treats alike);
+* with ``[models]`` in the tech file, also every device with a channel on
+  the dynamic node or an internal node (the foundry-model analysis reads
+  them: :func:`analyze.physics.device_charge.table_devices`), with the
+  nets they touch, and their order in the circuit (sums over them go in
+  that order, so the context circuit lists them first, in it);
 * the constraints as they bear on the stage: every constraint name that
   is one of its nets, by rank (a name matching a net only without regard
   to case marked so); names of no net of the stage only as placeholders,
@@ -32,7 +37,9 @@ and constraints fixed for the life of a :class:`StageContexts`):
 Left out, and mapped back instead: names themselves and locations (the
 stage's own, and each flag's, read from the real circuit).  A stage whose
 constraint names match two of its nets without regard to case, or whose
-analysis raises an error, is analysed directly, as without contexts.
+analysis raises an error, or whose foundry models could not be used (the
+report then quotes the error, in the stage's own names), is analysed
+directly, as without contexts.
 
 Since a key holds all the analysis reads, the distinct contexts can also
 be analysed in other processes (:func:`analyse_contexts` on a chunk of
@@ -75,7 +82,8 @@ from analyze.stages.stage import Receiver, Stage
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
 from extract.tech import Tech
 
-__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "analyse_contexts"]
+__all__ = ["StageContexts", "stage_context", "context_circuit", "renamed_result", "analyse_contexts",
+           "MODELS_UNUSABLE"]
 
 _SIX = struct.Struct("<6d")
 _THREE = struct.Struct("<3d")
@@ -128,6 +136,14 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
         dev_names += (r.nmos, r.pmos)
     if secondary:
         dev_names += secondary.values()
+    table = None
+    if tech.models is not None:
+        # the foundry-model analysis also reads every device with a channel
+        # on the dynamic or an internal node, in circuit order
+        from analyze.physics.device_charge import table_devices
+
+        table = table_devices(circuit, stage)
+        dev_names += [d.name for d in table]
     dev_names = sorted(set(dev_names))
     index = circuit.devices_by_name()
     devs = [index.get(n) or circuit.device(n) for n in dev_names]
@@ -189,7 +205,8 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
     cons = _constraints_row(constraints, nets, ni)
     if cons is False:
         return None, nets, dev_names
-    return (stage_row, tuple(net_rows), dev_rows, cons), nets, dev_names
+    order = None if table is None else tuple([di[d.name] for d in table])
+    return (stage_row, tuple(net_rows), dev_rows, cons, order), nets, dev_names
 
 
 def _constraints_row(constraints, nets, ni):
@@ -222,6 +239,11 @@ def _constraints_row(constraints, nets, ni):
     return hot, comp, fixed, low
 
 
+#: How a stage's ``physics_note`` starts when its foundry models could not be
+#: used (the rest quotes the error, which names the stage's own devices).
+MODELS_UNUSABLE = "foundry models not usable for this stage"
+
+
 class _Unkeyed(Exception):
     pass
 
@@ -250,7 +272,7 @@ def context_circuit(key, path: str = "<constraints>"):
         Without a location.
     constraints : Constraints or None
     """
-    stage_row, net_rows, dev_rows, cons = key
+    stage_row, net_rows, dev_rows, cons, order = key
     nn = _names(len(net_rows), "N")
     dn = _names(len(dev_rows), "M")
     nets = {}
@@ -260,6 +282,9 @@ def context_circuit(key, path: str = "<constraints>"):
                          junctions={t: JunctionGeometry(*_THREE.unpack(j)) for t, j in junctions})
     devices = [Device(name, t, nn[d], nn[g], nn[s], *_SIX.unpack(nums), model=model)
                for name, (t, model, d, g, s, nums) in zip(dn, dev_rows)]
+    if order is not None:  # the devices on the stage's nodes first, in the real circuit's order
+        first = set(order)
+        devices = [devices[i] for i in order] + [d for i, d in enumerate(devices) if i not in first]
     (pol, x, clk, sup, rail, pre, ev, foot, foot_node, inputs, internal, keepers, receivers, secondary) = stage_row
     dv = lambda idx: tuple(dn[i] for i in idx)  # noqa: E731
     stage = Stage(
@@ -384,9 +409,12 @@ def _context_result(analyse, key, tech, path):
     """One context analysed on its placeholder circuit; None when that raises."""
     c, s, cons = context_circuit(key, path)
     try:
-        return analyse(c, s, tech, cons)
+        result = analyse(c, s, tech, cons)
     except Exception:  # noqa: BLE001
         return None
+    if (result.physics_note or "").startswith(MODELS_UNUSABLE):
+        return None  # the note quotes the error in placeholder names
+    return result
 
 
 class StageContexts:
@@ -410,11 +438,11 @@ class StageContexts:
 
     Notes
     -----
-    Only the lumped (tech-file) analysis is shared: with ``[models]`` in
-    the tech file each stage is analysed directly (the foundry-model
-    analysis measures device tables per stage and is not keyed).  Cost
-    per stage: the key, O(stage size), then a dict look-up; the analysis
-    once per key.
+    With ``[models]`` in the tech file the foundry-model analysis is
+    shared too (its key also holds the devices on the stage's nodes); its
+    device tables are measured for the context circuit's placeholder
+    names, once, and cached as any others.  Cost per stage: the key,
+    O(stage size), then a dict look-up; the analysis once per key.
     """
 
     def __init__(self, circuit: Circuit, tech: Tech, constraints: Constraints | None, analyse):
@@ -481,8 +509,6 @@ class StageContexts:
 
     def analyse(self, stage: Stage):
         """The :class:`~analyze.search.analysis.StageResult` of ``stage``."""
-        if self.tech.models is not None:
-            return self._analyse(self.circuit, stage, self.tech, self.constraints)
         key, nets, devices = self._key(stage)
         hit = None if key is None else self._results.get(key)
         if key is not None and hit is None:

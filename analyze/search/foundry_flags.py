@@ -94,8 +94,8 @@ def prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, thre
         best = max(options, key=lambda n: (sign * worst_v([*applied, n]), -free.index(n)))
         applied.append(best)
         net = circuit.nets.get(best)
-        between = tuple(sorted(d.name for d in circuit.devices
-                               if d.name in stage.evaluation and best in (d.drain, d.source)))
+        between = tuple(sorted(name for name in stage.evaluation  # the stage's devices only, not the circuit's
+                               if best in (circuit.device(name).drain, circuit.device(name).source)))
         chosen.append(Flag(node=best, action=action, v_final_after=worst_v(applied),
                            location_um=None if net is None else net.location_um, between=between))
     added = len(chosen) - len(flags)

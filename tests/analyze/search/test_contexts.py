@@ -136,7 +136,8 @@ def test_contexts_that_raised_elsewhere_analysed_here(tmp_path):
 
 
 def test_models_tech_sends_nothing():
-    # with [models] no stage is keyed (module text): prefetch sends nothing
+    # with [models] prefetch sends nothing (StageContexts.prefetch): the
+    # foundry-model contexts are analysed where their device tables are
     tech = dataclasses.replace(make_tech(), models=object())
     calls = []
     assert StageContexts(Circuit("c", {}, []), tech, None, analyze_stage).prefetch([], _solver(calls)) == 0

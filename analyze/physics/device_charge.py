@@ -46,6 +46,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from analyze.physics.charge import node_charge
+from analyze.physics.lookup import interp_point
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
@@ -384,16 +385,23 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     ends = [(index[a], index[b]) for _, a, b in links]
     sign = 1.0 if n_type else -1.0
 
+    # plain floats in the right-hand side: the same arithmetic as numpy's
+    # on scalars (the same doubles), without its per-call cost
+    grid_l = grid.tolist()
+    caps_l = [c.tolist() for c in caps]
+    nodes = range(len(group))
+
     def rates(_t, v):
-        flow = np.zeros(len(group))
+        v = v.tolist()
+        flow = [0.0] * len(v)
         for f, (i, j) in zip(funcs, ends):
             # the receiving node: the lower one (n-type), the higher (p-type)
             r, g = (j, i) if (v[i] >= v[j]) == n_type else (i, j)
             cur = f(v[r], v[g])
             flow[r] += sign * cur
             flow[g] -= sign * cur
-        c = np.array([np.interp(v[m], grid, caps[m]) for m in range(len(group))])
-        return flow / c
+        c = [interp_point(v[m], grid_l, caps_l[m]) for m in nodes]
+        return np.array(flow) / np.array(c)
 
     v0 = np.full(len(group), v_from)
     v0[0] = v_x0(v_from)

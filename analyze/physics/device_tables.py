@@ -57,6 +57,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from analyze.physics.lookup import interp_point, interp_rows
 from extract.tech import Tech
 
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
@@ -116,17 +117,22 @@ class StageTables:
         grid's first step, proportional to V_DS, as a subthreshold current
         1 − exp(−V_DS/V_T) is for V_DS ≪ V_T; EKV/BSIM subthreshold form,
         from memory)."""
-        logs = np.log(np.maximum(self.currents[name], 1e-15))
-        lds = np.log(self.v_ds)
+        logs = np.log(np.maximum(self.currents[name], 1e-15)).tolist()
+        lds = np.log(self.v_ds).tolist()
+        grid, first = self.v.tolist(), self.v_ds[0]
+
+        def row(k, v_near):
+            return interp_point(v_near, grid, logs[k])
 
         def i(v_near, v_far):
             vds = abs(float(v_far) - float(v_near))
             if vds <= 0.0:
                 return 0.0
-            rows = np.array([np.interp(v_near, self.v, row) for row in logs])
-            if vds < self.v_ds[0]:
-                return float(np.exp(rows[0]) * vds / self.v_ds[0])
-            return float(np.exp(np.interp(np.log(vds), lds, rows)))
+            v_near = float(v_near)
+            if vds < first:
+                return float(np.exp(row(0, v_near)) * vds / first)
+            # log-log in |V_DS|: only the two rows around it are looked up
+            return float(np.exp(interp_rows(float(np.log(vds)), lds, lambda k: row(k, v_near))))
         return i
 
     def terminal(self, name: str, vg: float):

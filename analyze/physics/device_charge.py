@@ -461,10 +461,13 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     -----
     C_n(V) from the node's charge tabulated on a grid; currents from
     :meth:`analyze.physics.device_tables.StageTables.current`; stiff ODE integrated by scipy's BDF method
-    (Curtiss–Hirschfelder backward differentiation).  Cost: a few hundred
+    (Curtiss–Hirschfelder backward differentiation; :class:`analyze.physics.stiff.LeanBDF`, the same
+    numbers faster).  Cost: a few hundred
     evaluations of O(links) interpolations.
     """
     from scipy.integrate import solve_ivp
+
+    from analyze.physics.stiff import LeanBDF
 
     tables = ctx.tables
     vdd = float(ctx.tech.vdd)
@@ -499,7 +502,7 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
 
     v0 = np.full(len(group), v_from)
     v0[0] = v_x0(v_from)
-    sol = solve_ivp(rates, (0.0, t_ns), v0, method="BDF", rtol=1e-4, atol=1e-5)
+    sol = solve_ivp(rates, (0.0, t_ns), v0, method=LeanBDF, rtol=1e-4, atol=1e-5)
     v_end = sol.y[:, -1]
     lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
     return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}

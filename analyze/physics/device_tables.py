@@ -53,6 +53,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+from bisect import bisect_right
 from collections import OrderedDict
 from dataclasses import dataclass, field
 
@@ -126,19 +127,49 @@ class StageTables:
         logs = np.log(np.maximum(table, 1e-15)).tolist()
         lds = np.log(self.v_ds).tolist()
         grid, first = self.v.tolist(), self.v_ds[0]
-
-        def row(k, v_near):
-            return interp_point(v_near, grid, logs[k])
+        last, rows = len(grid) - 1, len(lds) - 1
 
         def i(v_near, v_far):
             vds = abs(float(v_far) - float(v_near))
             if vds <= 0.0:
                 return 0.0
-            v_near = float(v_near)
+            if vds != vds:
+                return vds  # NaN, as numpy.interp gives it
+            x = float(v_near)
+            # numpy.interp's arithmetic on plain floats (analyze.physics.lookup),
+            # the near voltage's place in the grid found once for every row
+            j = bisect_right(grid, x) - 1
+            if x != x or 0 <= j < last and grid[j] != x:
+                col = None
+                if x == x:
+                    x0, dx = grid[j], grid[j + 1] - grid[j]
+            else:
+                col = 0 if j < 0 else (last if j >= last else j)
+
+            def row(k):
+                r = logs[k]
+                if col is not None:
+                    return r[col]
+                out = (r[j + 1] - r[j]) / dx * (x - x0) + r[j] if x == x else float("nan")
+                return out if out == out else interp_point(x, grid, r)
+
             if vds < first:
-                return float(np.exp(row(0, v_near)) * vds / first)
+                return float(np.exp(row(0)) * vds / first)
             # log-log in |V_DS|: only the two rows around it are looked up
-            return float(np.exp(interp_rows(float(np.log(vds)), lds, lambda k: row(k, v_near))))
+            lx = float(np.log(vds))
+            m = bisect_right(lds, lx) - 1
+            if m < 0:
+                y = row(0)
+            elif m >= rows:
+                y = row(rows)
+            elif lds[m] == lx:
+                y = row(m)
+            else:
+                lo = row(m)
+                y = (row(m + 1) - lo) / (lds[m + 1] - lds[m]) * (lx - lds[m]) + lo
+                if y != y:
+                    y = interp_rows(lx, lds, row)
+            return float(np.exp(y))
         self._made[("i", name)] = (table, i)
         return i
 

@@ -56,3 +56,39 @@ def test_nan_and_lazy_rows():
     # 1.25: between xp[1] and xp[2], 7 + 0.25 * (1 - 7) = 5.5; only those two looked up
     assert interp_rows(1.25, xp, at) == 5.5
     assert sorted(asked) == [1, 2]
+
+
+def test_pass_current_lookup_bit_for_bit_against_numpy():
+    # The pass current of analyze.physics.device_tables written with numpy
+    # (eleven numpy.interp rows in the near voltage, then numpy.interp in
+    # log V_DS) against StageTables.current, which looks up only the rows it
+    # needs on plain floats: the same doubles, NaN where numpy gives NaN.
+    from analyze.physics.device_tables import StageTables
+
+    rng = np.random.default_rng(5)
+    grid = np.linspace(0.0, 1.8, 181)
+
+    def reference(t, name):
+        logs, lds = np.log(np.maximum(t.currents[name], 1e-15)), np.log(t.v_ds)
+
+        def i(v_near, v_far):
+            vds = abs(float(v_far) - float(v_near))
+            if vds <= 0.0:
+                return 0.0
+            rows = np.array([np.interp(v_near, t.v, row) for row in logs])
+            if vds < t.v_ds[0]:
+                return float(np.exp(rows[0]) * vds / t.v_ds[0])
+            return float(np.exp(np.interp(np.log(vds), lds, rows)))
+        return i
+
+    for _ in range(4):
+        t = StageTables(grid)
+        t.currents["d"] = np.exp(rng.normal(0, 6, (11, 181))) * (rng.random((11, 181)) > 0.05)  # zeros too
+        want, got = reference(t, "d"), t.current("d")
+        nears = np.concatenate([rng.uniform(-0.3, 2.1, 300), grid, np.nextafter(grid, np.inf)])
+        for x in nears:
+            for far in (x, x + 1e-4, x + 0.003, x - 0.05, x + 0.9, x + 2.5, x + float(rng.uniform(-2, 2)),
+                        float("nan")):
+                a, b = want(x, far), got(x, far)
+                assert (math.isnan(a) and math.isnan(b)) or _same(a, b), (x, far)
+        assert math.isnan(got(float("nan"), 1.0)) and math.isnan(want(float("nan"), 1.0))

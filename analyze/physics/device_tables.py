@@ -53,6 +53,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import threading
 from bisect import bisect_right
 from collections import OrderedDict
 from dataclasses import dataclass, field
@@ -219,6 +220,7 @@ class StageTables:
 #: tables again.  Table files kept: the last :data:`_KEPT` read.
 _DIGESTS: dict = {}
 _TABLES: "OrderedDict[str, tuple]" = OrderedDict()
+_TABLES_LOCK = threading.Lock()
 _KEPT = 32
 
 
@@ -249,10 +251,11 @@ def _read_tables(path: str) -> dict:
     """A cached table file, parsed, its tables as read-only arrays (shared
     by every :class:`StageTables` made from it)."""
     stamp = _stamp(path)
-    hit = _TABLES.get(path)
-    if hit is not None and hit[0] == stamp:
-        _TABLES.move_to_end(path)
-        return hit[1]
+    with _TABLES_LOCK:  # threads of one worker may share it
+        hit = _TABLES.get(path)
+        if hit is not None and hit[0] == stamp:
+            _TABLES.move_to_end(path)
+            return hit[1]
     with open(path) as fh:
         data = json.load(fh)
     if "q" in data:
@@ -260,9 +263,10 @@ def _read_tables(path: str) -> dict:
     for part in ("i", "held"):
         if part in data:
             data[part] = {k: _frozen(v) for k, v in data[part].items()}
-    _TABLES[path] = (stamp, data)
-    while len(_TABLES) > _KEPT:
-        _TABLES.popitem(last=False)
+    with _TABLES_LOCK:
+        _TABLES[path] = (stamp, data)
+        while len(_TABLES) > _KEPT:
+            _TABLES.popitem(last=False)
     return data
 
 

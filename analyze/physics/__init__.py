@@ -5,7 +5,12 @@ junctions), :mod:`~analyze.physics.threshold` (pass limit with body effect,
 receiver switching threshold), :mod:`~analyze.physics.regions` (which
 precharged node can feed which discharged region),
 :mod:`~analyze.physics.redistribution` (the final-voltage solver),
-:mod:`~analyze.physics.sharing` (a stage as switches and nodes).
+:mod:`~analyze.physics.sharing` (a stage as switches and nodes),
+:mod:`~analyze.physics.device_tables` and
+:mod:`~analyze.physics.device_charge` (the foundry models' device charges
+and the solver with them), :mod:`~analyze.physics.lookup` (one-point table
+lookup, numpy.interp's numbers), :mod:`~analyze.physics.stiff` (the creep's
+stiff ODE solver).
 
 May import: :mod:`extract`, :mod:`analyze.stages`.
 """

@@ -46,10 +46,12 @@ import numpy as np
 from scipy.optimize import brentq
 
 from analyze.physics.charge import node_charge
+from analyze.physics.lookup import interp_point
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
 __all__ = ["GateLevels", "ChargeContext", "charge_context", "gate_levels", "final_voltage_with_devices",
+           "Settling", "settle", "BOUND_TOLERANCE",
            "table_devices", "clock_setup", "equalised_bound"]
 
 
@@ -181,6 +183,9 @@ class ChargeContext:
     rests : dict of str to NodeCharge
         Each node's lumped charge without what the tables hold, filled as
         nodes are met.
+    tables_increasing : bool or None
+        Whether every measured charge table is nondecreasing (None until
+        :meth:`increasing` first looks).
     """
 
     circuit: object
@@ -191,12 +196,32 @@ class ChargeContext:
     clocked: set
     receivers: list
     rests: dict
+    tables_increasing: bool | None = None
 
     def rest(self, net: str):
         if net not in self.rests:
             self.rests[net] = _lumped_rest(self.circuit.nets.get(net), self.circuit, self.stage, self.tech,
                                            self.devices, self.stage.receivers)
         return self.rests[net]
+
+    def increasing(self, nodes) -> bool:
+        """Whether every node's charge after the edge is a nondecreasing
+        function of its voltage: each measured table of the stage
+        (terminals, receivers; linear interpolation and extrapolation of a
+        nondecreasing table are nondecreasing) and each node's lumped rest
+        (``c_lin·V`` plus depletion charges, increasing when ``c_lin`` and
+        every ``C0`` are not negative: :mod:`analyze.physics.charge`)."""
+        if self.tables_increasing is None:
+            t = self.tables
+            self.tables_increasing = all(bool(np.all(np.diff(a) >= 0.0))
+                                         for d in (t.terminals, t.receivers, t.held) for a in d.values())
+        if not self.tables_increasing:
+            return False
+        for n in nodes:
+            r = self.rest(n)
+            if not (r.c_lin >= 0.0 and bool(np.all(r.c0 >= 0.0)) and bool(np.all(r.pb > 0.0))):
+                return False
+        return True
 
 
 def charge_context(circuit, stage, tech, tables) -> ChargeContext:
@@ -235,6 +260,65 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
     -------
     float
         V(X) at the end, V.
+    """
+    return settle(ctx, group, levels, start, links).value()
+
+
+@dataclass
+class Settling:
+    """The dynamic node's final voltage, known or with only the creep past
+    the pass limit left to solve (:func:`settle`).
+
+    Attributes
+    ----------
+    bound : float or None
+        A bound proven before the creep: V(X) never ends below it less
+        :data:`BOUND_TOLERANCE` (n-type; p-type: never above it plus that);
+        None when not proven.  The final voltage itself once known.
+    finish : callable or None
+        Solves the rest; None once the value is known.
+    """
+
+    bound: float | None
+    finish: object = None
+
+    def value(self) -> float:
+        """The final voltage (solving the creep on first call)."""
+        if self.finish is not None:
+            self.bound, self.finish = self.finish(), None
+        return self.bound
+
+
+#: Slack of the bound for the root searches behind it (``xtol`` 1e-7 V each;
+#: the equalised voltage's residual charge, left to the dynamic node alone,
+#: moves it by that times the group's capacitance over the node's): 1 mV, V.
+BOUND_TOLERANCE = 1e-3
+
+
+def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict, links=()) -> Settling:
+    """:func:`final_voltage_with_devices` in two steps: everything but the
+    creep past the pass limit, then (:meth:`Settling.value`) the creep.
+
+    Parameters
+    ----------
+    ctx, group, levels, start, links
+        As for :func:`final_voltage_with_devices`.
+
+    Returns
+    -------
+    Settling
+        With the value when no creep is needed; else with the bound the
+        equalised voltage V_eq gives, when proven.
+
+    Notes
+    -----
+    The bound: the internal nodes end between the creep's start and V_eq
+    (its result is clipped there), so with every node charge
+    nondecreasing in its voltage (:meth:`ChargeContext.increasing`) they
+    hold no more charge than at V_eq (n-type) and the dynamic node keeps at
+    least its share at V_eq: V(X) >= V_eq (p-type: the mirror, V(X) <= V_eq).
+    The caller can then leave out a pattern whose bound is already past
+    the worst found (:func:`analyze.search.foundry.solve_candidates`).
     """
     stage, tech, tables = ctx.stage, ctx.tech, ctx.tables
     vdd = float(tech.vdd)
@@ -285,11 +369,11 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
     v_eq = brentq(f_equal, -margin, vdd + margin, xtol=1e-7)
     internal = [n for n in group if n != stage.dynamic_node]
     if not internal:
-        return v_eq
+        return Settling(v_eq)
     v_lim = pass_limit(tech.mos["nmos" if n_type else "pmos"], vdd)
     v_lim = v_lim if n_type else vdd - v_lim
     if (n_type and v_eq <= v_lim) or (not n_type and v_eq >= v_lim):
-        return v_eq
+        return Settling(v_eq)
     x = stage.dynamic_node
 
     def v_x(v_int):
@@ -315,15 +399,26 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
     links = [ln for ln in links if ln[0] in tables.currents]
     v_end = {n: v_lim if v_int0 is None else (max(v_lim, v_int0) if n_type else min(v_lim, v_int0))
              for n in internal}
-    if links:
-        # the fast phase up to a few hundred mV short of the pass limit takes
-        # no time worth counting; the creep is solved from there
-        v_from = v_lim - 0.3 if n_type else v_lim + 0.3
-        if v_int0 is not None:
-            v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
-        v_end = _creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns, margin)
-    rest = total - sum(q_node(n, v_end[n], 1) for n in internal)
-    return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
+
+    def x_final(v_end):
+        rest = total - sum(q_node(n, v_end[n], 1) for n in internal)
+        return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
+
+    if not links:
+        return Settling(x_final(v_end))
+    # the fast phase up to a few hundred mV short of the pass limit takes
+    # no time worth counting; the creep is solved from there
+    v_from = v_lim - 0.3 if n_type else v_lim + 0.3
+    if v_int0 is not None:
+        v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
+
+    def finish():
+        return x_final(_creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns,
+                                      margin))
+
+    # the creep ends each internal node in [v_from, v_eq] (p-type: [v_eq, v_from])
+    proven = (v_from <= v_eq if n_type else v_eq <= v_from) and ctx.increasing(group)
+    return Settling(v_eq if proven else None, finish)
 
 
 def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float) -> dict:
@@ -366,10 +461,13 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     -----
     C_n(V) from the node's charge tabulated on a grid; currents from
     :meth:`analyze.physics.device_tables.StageTables.current`; stiff ODE integrated by scipy's BDF method
-    (Curtiss–Hirschfelder backward differentiation).  Cost: a few hundred
+    (Curtiss–Hirschfelder backward differentiation; :class:`analyze.physics.stiff.LeanBDF`, the same
+    numbers faster).  Cost: a few hundred
     evaluations of O(links) interpolations.
     """
     from scipy.integrate import solve_ivp
+
+    from analyze.physics.stiff import LeanBDF
 
     tables = ctx.tables
     vdd = float(ctx.tech.vdd)
@@ -384,20 +482,27 @@ def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_
     ends = [(index[a], index[b]) for _, a, b in links]
     sign = 1.0 if n_type else -1.0
 
+    # plain floats in the right-hand side: the same arithmetic as numpy's
+    # on scalars (the same doubles), without its per-call cost
+    grid_l = grid.tolist()
+    caps_l = [c.tolist() for c in caps]
+    nodes = range(len(group))
+
     def rates(_t, v):
-        flow = np.zeros(len(group))
+        v = v.tolist()
+        flow = [0.0] * len(v)
         for f, (i, j) in zip(funcs, ends):
             # the receiving node: the lower one (n-type), the higher (p-type)
             r, g = (j, i) if (v[i] >= v[j]) == n_type else (i, j)
             cur = f(v[r], v[g])
             flow[r] += sign * cur
             flow[g] -= sign * cur
-        c = np.array([np.interp(v[m], grid, caps[m]) for m in range(len(group))])
-        return flow / c
+        c = [interp_point(v[m], grid_l, caps_l[m]) for m in nodes]
+        return np.array(flow) / np.array(c)
 
     v0 = np.full(len(group), v_from)
     v0[0] = v_x0(v_from)
-    sol = solve_ivp(rates, (0.0, t_ns), v0, method="BDF", rtol=1e-4, atol=1e-5)
+    sol = solve_ivp(rates, (0.0, t_ns), v0, method=LeanBDF, rtol=1e-4, atol=1e-5)
     v_end = sol.y[:, -1]
     lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
     return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}

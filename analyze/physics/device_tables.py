@@ -53,10 +53,14 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import threading
+from bisect import bisect_right
+from collections import OrderedDict
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from analyze.physics.lookup import interp_point, interp_rows
 from extract.tech import Tech
 
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
@@ -109,6 +113,7 @@ class StageTables:
     currents: dict = field(default_factory=dict)
     v_ds: np.ndarray = field(default_factory=lambda: np.asarray(VDS_GRID))
     clock_v: float | None = None
+    _made: dict = field(default_factory=dict, repr=False, compare=False)
 
     def current(self, name: str):
         """Pass current ``I(v_near, v_far)`` of ``name``, µA: log-interpolated
@@ -116,48 +121,159 @@ class StageTables:
         grid's first step, proportional to V_DS, as a subthreshold current
         1 − exp(−V_DS/V_T) is for V_DS ≪ V_T; EKV/BSIM subthreshold form,
         from memory)."""
-        logs = np.log(np.maximum(self.currents[name], 1e-15))
-        lds = np.log(self.v_ds)
+        table = self.currents[name]
+        made = self._made.get(("i", name))
+        if made is not None and made[0] is table:
+            return made[1]
+        logs = np.log(np.maximum(table, 1e-15)).tolist()
+        lds = np.log(self.v_ds).tolist()
+        grid, first = self.v.tolist(), self.v_ds[0]
+        last, rows = len(grid) - 1, len(lds) - 1
 
         def i(v_near, v_far):
             vds = abs(float(v_far) - float(v_near))
             if vds <= 0.0:
                 return 0.0
-            rows = np.array([np.interp(v_near, self.v, row) for row in logs])
-            if vds < self.v_ds[0]:
-                return float(np.exp(rows[0]) * vds / self.v_ds[0])
-            return float(np.exp(np.interp(np.log(vds), lds, rows)))
+            if vds != vds:
+                return vds  # NaN, as numpy.interp gives it
+            x = float(v_near)
+            # numpy.interp's arithmetic on plain floats (analyze.physics.lookup),
+            # the near voltage's place in the grid found once for every row
+            j = bisect_right(grid, x) - 1
+            if x != x or 0 <= j < last and grid[j] != x:
+                col = None
+                if x == x:
+                    x0, dx = grid[j], grid[j + 1] - grid[j]
+            else:
+                col = 0 if j < 0 else (last if j >= last else j)
+
+            def row(k):
+                r = logs[k]
+                if col is not None:
+                    return r[col]
+                out = (r[j + 1] - r[j]) / dx * (x - x0) + r[j] if x == x else float("nan")
+                return out if out == out else interp_point(x, grid, r)
+
+            if vds < first:
+                return float(np.exp(row(0)) * vds / first)
+            # log-log in |V_DS|: only the two rows around it are looked up
+            lx = float(np.log(vds))
+            m = bisect_right(lds, lx) - 1
+            if m < 0:
+                y = row(0)
+            elif m >= rows:
+                y = row(rows)
+            elif lds[m] == lx:
+                y = row(m)
+            else:
+                lo = row(m)
+                y = (row(m + 1) - lo) / (lds[m + 1] - lds[m]) * (lx - lds[m]) + lo
+                if y != y:
+                    y = interp_rows(lx, lds, row)
+            return float(np.exp(y))
+        self._made[("i", name)] = (table, i)
         return i
 
     def terminal(self, name: str, vg: float):
         """Charge function ``q(V)`` of ``name``'s tied source/drain at gate ``vg``
         (linear beyond the grid's ends)."""
-        return self._function(self.terminals[(name, round(float(vg), 6))])
+        key = (name, round(float(vg), 6))
+        return self._function(("t", key), self.terminals[key])
 
     def receiver(self, nmos: str, held: str | None = None):
         """Input charge function of the receiver whose nmos is ``nmos``:
         its output following (quasi-static), or held ``"lo"`` / ``"hi"``."""
-        return self._function(self.receivers[nmos] if held is None else self.held[(nmos, held)])
+        return self._function(("r", nmos, held), self.receivers[nmos] if held is None else self.held[(nmos, held)])
 
-    def _function(self, table):
+    def _function(self, key, table):
+        """``q(x)``: an array for an array, a float for one voltage (the
+        same double either way); made once per table."""
+        made = self._made.get(key)
+        if made is not None and made[0] is table:
+            return made[1]
         v = self.v
         lo = (table[1] - table[0]) / (v[1] - v[0])
         hi = (table[-1] - table[-2]) / (v[-1] - v[-2])
+        grid, values = v.tolist(), table.tolist()
+        v_lo, v_hi, q_lo, q_hi, s_lo, s_hi = (float(x) for x in (v[0], v[-1], table[0], table[-1], lo, hi))
 
         def q(x):
+            if isinstance(x, (float, int)):
+                x = float(x)
+                if x < v_lo:
+                    return q_lo + s_lo * (x - v_lo)
+                if x > v_hi:
+                    return q_hi + s_hi * (x - v_hi)
+                return interp_point(x, grid, values)
             x = np.asarray(x, dtype=float)
             inside = np.interp(x, v, table)
             return np.where(x < v[0], table[0] + lo * (x - v[0]),
                             np.where(x > v[-1], table[-1] + hi * (x - v[-1]), inside))
+        self._made[key] = (table, q)
         return q
+
+
+#: Per process: the digest of each pruned model file and the parsed table
+#: files, by path, each with the file's (modification time, size, inode) when
+#: read; used only while that is unchanged.  A stage analysed again in the
+#: same process neither hashes the model file (megabytes) nor parses its
+#: tables again.  Table files kept: the last :data:`_KEPT` read.
+_DIGESTS: dict = {}
+_TABLES: "OrderedDict[str, tuple]" = OrderedDict()
+_TABLES_LOCK = threading.Lock()
+_KEPT = 32
+
+
+def _stamp(path: str) -> tuple:
+    st = os.stat(path)
+    return st.st_mtime_ns, st.st_size, st.st_ino
+
+
+def _digest(path: str) -> bytes:
+    stamp = _stamp(path)
+    hit = _DIGESTS.get(path)
+    if hit is not None and hit[0] == stamp:
+        return hit[1]
+    with open(path, "rb") as fh:
+        digest = hashlib.sha256(fh.read()).digest()
+    _DIGESTS[path] = (stamp, digest)
+    return digest
 
 
 def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        h.update(hashlib.sha256(fh.read()).digest())
+    h.update(_digest(path))
     h.update(json.dumps(["ramp-integral-5", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
     return h.hexdigest()[:24]
+
+
+def _read_tables(path: str) -> dict:
+    """A cached table file, parsed, its tables as read-only arrays (shared
+    by every :class:`StageTables` made from it)."""
+    stamp = _stamp(path)
+    with _TABLES_LOCK:  # threads of one worker may share it
+        hit = _TABLES.get(path)
+        if hit is not None and hit[0] == stamp:
+            _TABLES.move_to_end(path)
+            return hit[1]
+    with open(path) as fh:
+        data = json.load(fh)
+    if "q" in data:
+        data["q"] = [_frozen(q) for q in data["q"]]
+    for part in ("i", "held"):
+        if part in data:
+            data[part] = {k: _frozen(v) for k, v in data[part].items()}
+    with _TABLES_LOCK:
+        _TABLES[path] = (stamp, data)
+        while len(_TABLES) > _KEPT:
+            _TABLES.popitem(last=False)
+    return data
+
+
+def _frozen(values) -> np.ndarray:
+    out = np.asarray(values)
+    out.flags.writeable = False
+    return out
 
 
 def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, passes=(), clock=None) -> StageTables:
@@ -224,8 +340,7 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
     cache = os.path.join(cache_dir("tables"), key + ".json")
     grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
     if os.path.isfile(cache):
-        with open(cache) as fh:
-            data = json.load(fh)
+        data = _read_tables(cache)
     else:
         data = _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
         data["i"] = _measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)

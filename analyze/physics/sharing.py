@@ -437,10 +437,15 @@ class SharingModel:
             starts = [self.vdd if (i == 0 or (self.precharged >> i) & 1) else 0.0 for i in idx]
             u_lin = linear_final_voltage(self.zero_bias[idx], starts)
             v = self.to_volts(red.v_final)
-            hit = (tuple(self.nodes[i] for i in idx[1:]), v, self.to_volts(u_lin),
-                   abs(self.to_volts(self.vdd) - v), red.regime)
+            hit = (self.shared_of(node_mask), v, self.to_volts(u_lin), abs(self.to_volts(self.vdd) - v), red.regime)
             self._cache[key] = hit
         return hit
+
+    def shared_of(self, node_mask: int) -> tuple:
+        """The names of a component's nodes after its first (the dynamic
+        node): the ``shared_nodes`` of its :meth:`outcome`."""
+        idx = [i for i in range(len(self.nodes)) if (node_mask >> i) & 1]
+        return tuple(self.nodes[i] for i in idx[1:])
 
     def outcome(self, values, node_mask: int) -> WorstCase:
         """The :class:`WorstCase` record of a counted pattern."""

@@ -13,6 +13,7 @@ Units: V, µm, kp µA/V².
 
 from __future__ import annotations
 
+import functools
 import math
 
 from scipy.optimize import brentq
@@ -75,7 +76,8 @@ def pass_limit(params: MosParams, vdd: float) -> float:
     -----
     ``V + VT(V) − vdd`` increases with ``V``, so one root lies in
     ``[0, vdd − |vt0|]``; it is found by Brent's bracketing method
-    (scipy.optimize.brentq).
+    (scipy.optimize.brentq), once per process for each device type's
+    numbers and supply (remembered).
 
     Examples
     --------
@@ -84,6 +86,16 @@ def pass_limit(params: MosParams, vdd: float) -> float:
     >>> round(pass_limit(p, 1.8), 9)  # no body effect: 1.8 - 0.5
     1.3
     """
+    try:
+        return _pass_limit(params, vdd)
+    except TypeError:  # numbers that cannot be a key (not a MosParams)
+        return _pass_limit.__wrapped__(params, vdd)
+
+
+@functools.lru_cache(maxsize=256, typed=True)
+def _pass_limit(params: MosParams, vdd: float) -> float:
+    # remembered per (device type's numbers, supply): the foundry-model
+    # solver asks it once per pattern and case
     top = vdd - abs(params.vt0)
     if top <= 0.0:
         return 0.0

@@ -50,6 +50,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from itertools import islice
 from typing import Iterator
 
 from analyze.search.constraints import Constraints, check_constraints_apply, stage_blocks
@@ -446,18 +447,21 @@ def worst_patterns(
     -----
     Patterns that share the same nodes end at the same voltage in this
     model, so only one of them (the first met) stands for its set.  Cost:
-    the exact search plus at most ``scan`` pattern evaluations.
+    the exact search plus the enumeration of at most ``scan`` patterns,
+    one evaluation per set of shared nodes.
     """
     best = find_worst_case(circuit, stage, tech, constraints)
     if best is None:
         return []
-    key = lambda wc: tuple(sorted(wc.shared_nodes))  # noqa: E731
-    chosen = {key(best): best}
+    chosen = {tuple(sorted(best.shared_nodes)): best}
     others: dict[tuple, WorstCase] = {}
-    for wc in iter_counted_patterns(circuit, stage, tech, constraints, limit=scan):
-        k = key(wc)
+    # the patterns of iter_counted_patterns(..., limit=scan), each made a
+    # WorstCase only when it is the first with its shared nodes
+    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
+    for values, comp in islice(iter_counted(model, choices), max(0, scan)):
+        k = tuple(sorted(model.shared_of(comp)))
         if k not in chosen and k not in others:
-            others[k] = wc
+            others[k] = model.outcome(values, comp)
     sign = 1.0 if stage.polarity == "n" else -1.0
     ranked = sorted(others.values(), key=lambda wc: (sign * wc.v_final, sorted(wc.inputs.items())))
     return [best, *ranked[: max(0, count - 1)]]

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
-from analyze.physics.device_charge import (charge_context, clock_setup, final_voltage_with_devices, gate_levels,
+from analyze.physics.device_charge import (BOUND_TOLERANCE, charge_context, clock_setup, gate_levels, settle,
                                            table_devices)
 from analyze.physics.device_tables import stage_tables
 from analyze.physics.threshold import pass_limit
@@ -66,7 +66,8 @@ class FoundryStage:
     """What the foundry-model solve of one stage prepares once
     (:func:`prepare_stage`): its table devices, measured tables, solver
     context and the receivers' switching point; ``solved`` remembers final voltages by
-    what they depend on."""
+    what they depend on, ``pending`` the solves whose creep is left
+    (:func:`solve_candidates`)."""
 
     devices: list
     tables: object
@@ -74,6 +75,7 @@ class FoundryStage:
     threshold_v: float
     corner: object
     solved: dict = field(default_factory=dict)
+    pending: dict = field(default_factory=dict)
 
 
 def prepare_stage(circuit, stage, tech) -> FoundryStage:
@@ -103,14 +105,26 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
     """The worst of ``candidates`` over the arrival cases with the models:
     a WorstCase with ``case`` set, or None when there are no candidates.
     Nodes in ``precharged`` (and the stage's own secondary precharge) start
-    at the precharge level."""
+    at the precharge level.
+
+    Notes
+    -----
+    The worst is the lowest final voltage (p-type: highest), the first of
+    the candidates and cases in order among equals.  The creep past the
+    pass limit (a stiff ODE) is the costly part of a solve; a pattern and
+    case whose proven bound (:class:`analyze.physics.device_charge.Settling`)
+    is already past the worst found cannot be the worst and is left out,
+    so the creeps are solved in the order of their bounds, the most
+    promising first.  The result is the same as solving every one.
+    """
     vdd = float(tech.vdd)
     n_type = stage.polarity == "n"
+    sign = 1.0 if n_type else -1.0
     cases = arrival_cases(circuit, stage, constraints) if cases is None else tuple(cases)
     late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
     start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
     pre = set(stage.secondary_precharge) | set(precharged)
-    worst, worst_v = None, None
+    items, values, pending = [], {}, []
     for wc in candidates:
         group = [stage.dynamic_node, *wc.shared_nodes]
         start = {n: (start_x if n in pre else start_int) for n in group}
@@ -129,14 +143,58 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
             key = (tuple(group), tuple(st[n] for n in group), tuple(links),
                    tuple((d.name, lv.before[d.name], lv.after[d.name]) for d in prep.devices
                          if d.drain in members or d.source in members))
-            v = prep.solved.get(key)
-            if v is None:
-                v = prep.solved[key] = final_voltage_with_devices(prep.context, group, lv, st, links=links)
-            # the window opens with the node at its start: its extreme is never past it
-            v = min(v, start_x) if n_type else max(v, start_x)
-            if worst is None or (v < worst_v if n_type else v > worst_v):
-                worst, worst_v = replace(wc, v_final=v, droop_v=abs(start_x - v), case=case), v
+            k = len(items)
+            items.append((wc, case, key))
+            if key in prep.solved:
+                values[k] = prep.solved[key]
+                continue
+            settling = _settling(prep, key, group, lv, st, links)
+            if settling.finish is None:
+                values[k] = prep.solved[key] = settling.value()
+            else:
+                pending.append((k, settling))
+
+    def clipped(v):
+        # the window opens with the node at its start: its extreme is never past it
+        return min(v, start_x) if n_type else max(v, start_x)
+
+    # the worst found so far, as sign · V (lowest is worst); unproven bounds
+    # first, then the most promising bound first
+    found = [sign * clipped(v) for v in values.values()]
+    w = min(found) if found else None
+    pending.sort(key=lambda ks: (ks[1].bound is not None, 0.0 if ks[1].bound is None else sign * ks[1].bound,
+                                 ks[0]))
+    for k, settling in pending:
+        key = items[k][2]
+        if key not in prep.solved:
+            b = settling.bound
+            if b is not None and w is not None and sign * clipped(b - sign * BOUND_TOLERANCE) > w:
+                continue  # ends past the worst found: not the worst
+            prep.solved[key] = settling.value()
+        values[k] = prep.solved[key]
+        w = sign * clipped(values[k]) if w is None else min(w, sign * clipped(values[k]))
+    if any(v != v for v in values.values()):
+        # a NaN: solve everything, so the scan below meets what it always met
+        for k, settling in pending:
+            if k not in values:
+                values[k] = prep.solved[items[k][2]] = settling.value()
+    worst, worst_v = None, None
+    for k in sorted(values):
+        wc, case, _ = items[k]
+        v = clipped(values[k])
+        if worst is None or (v < worst_v if n_type else v > worst_v):
+            worst, worst_v = replace(wc, v_final=v, droop_v=abs(start_x - v), case=case), v
     return worst
+
+
+def _settling(prep: FoundryStage, key, group, levels, start, links):
+    """The :class:`analyze.physics.device_charge.Settling` of one group,
+    remembered by ``key`` while its creep is unsolved (two candidates or
+    cases can share a key)."""
+    memo = prep.pending
+    if key not in memo:
+        memo[key] = settle(prep.context, group, levels, start, links=links)
+    return memo[key]
 
 
 def precharged_through(prep: FoundryStage, stage, tech, inputs: dict, late: set, pre: set, start: dict) -> dict:

@@ -129,3 +129,26 @@ def test_a_non_finite_result_is_an_error_never_a_pass(nmos, pmos, what):
     with pytest.raises(InputError) as err:
         analyze_stage(circuit, stage, tech)
     assert err.value.file == "t.toml" and err.value.place == "stage X" and what in err.value.message
+
+
+# ------------------------------------------------ ranked runners-up
+
+@pytest.mark.parametrize("scan, count", [(0, 3), (7, 3), (40, 16), (4096, 5)])
+def test_worst_patterns_against_brute_force(scan, count):
+    # Brute force: every pattern of iter_counted_patterns up to ``scan`` made a
+    # WorstCase, the first met kept per set of shared nodes, the rest ranked
+    # by final voltage then inputs, after the exact worst case.
+    from analyze.search.analysis import find_worst_case, worst_patterns
+    from sharing_circuits import mux
+
+    circuit, stage = mux(TECH, 5)
+    best = find_worst_case(circuit, stage, TECH)
+    first = {tuple(sorted(best.shared_nodes)): best}
+    others = {}
+    for wc in list(iter_counted_patterns(circuit, stage, TECH))[:scan]:
+        others.setdefault(tuple(sorted(wc.shared_nodes)), wc)
+    ranked = sorted((wc for k, wc in others.items() if k not in first),
+                    key=lambda wc: (wc.v_final, sorted(wc.inputs.items())))
+    expected = [best, *ranked[: count - 1]]
+    assert worst_patterns(circuit, stage, TECH, count=count, scan=scan) == expected
+    assert len(expected) == (1 if scan == 0 else min(count, 1 + len(ranked)))

@@ -77,6 +77,8 @@ True
 from __future__ import annotations
 
 import struct
+
+from analyze.physics.device_charge import table_devices
 from analyze.search.constraints import Constraints
 from analyze.stages.stage import Receiver, Stage
 from extract.circuit import CapParts, Circuit, Device, JunctionGeometry, Net
@@ -140,8 +142,6 @@ def stage_context(circuit: Circuit, stage: Stage, tech: Tech, constraints: Const
     if tech.models is not None:
         # the foundry-model analysis also reads every device with a channel
         # on the dynamic or an internal node, in circuit order
-        from analyze.physics.device_charge import table_devices
-
         table = table_devices(circuit, stage)
         dev_names += [d.name for d in table]
     dev_names = sorted(set(dev_names))

@@ -94,8 +94,8 @@ def prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, thre
         best = max(options, key=lambda n: (sign * worst_v([*applied, n]), -free.index(n)))
         applied.append(best)
         net = circuit.nets.get(best)
-        between = tuple(sorted(name for name in stage.evaluation  # the stage's devices only, not the circuit's
-                               if best in (circuit.device(name).drain, circuit.device(name).source)))
+        ends = {name: circuit.device(name) for name in stage.evaluation}  # the stage's devices, not the circuit's
+        between = tuple(sorted(name for name, d in ends.items() if best in (d.drain, d.source)))
         chosen.append(Flag(node=best, action=action, v_final_after=worst_v(applied),
                            location_um=None if net is None else net.location_um, between=between))
     added = len(chosen) - len(flags)

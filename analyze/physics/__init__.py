@@ -9,8 +9,8 @@ precharged node can feed which discharged region),
 :mod:`~analyze.physics.device_tables` and
 :mod:`~analyze.physics.device_charge` (the foundry models' device charges
 and the solver with them), :mod:`~analyze.physics.lookup` (one-point table
-lookup, numpy.interp's numbers), :mod:`~analyze.physics.stiff` (the creep's
-stiff ODE solver).
+lookup, numpy.interp's numbers), :mod:`~analyze.physics.creep` (the creep
+past the pass limit and its stiff ODE solver).
 
 May import: :mod:`extract`, :mod:`analyze.stages`.
 """

@@ -28,7 +28,7 @@ joined nodes end at one voltage; an internal node of an n-type stage cannot
 rise above the nmos pass limit V_lim = VDD − VT(V_lim) (p-type: the mirror),
 and where the equalised voltage would pass it the internal nodes stop near
 it — each where the measured subthreshold currents through the stack take it
-within ``evaluation_ns`` (:func:`_creep_network`) — and the dynamic node
+within ``evaluation_ns`` (:func:`analyze.physics.creep.creep_network`) — and the dynamic node
 keeps the rest.  Internal nodes that start precharged share among themselves
 first.
 
@@ -40,13 +40,13 @@ O(devices × log(1/tolerance)).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.optimize import brentq
 
 from analyze.physics.charge import node_charge
-from analyze.physics.lookup import interp_point
+from analyze.physics.creep import creep_network
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
@@ -186,6 +186,11 @@ class ChargeContext:
     tables_increasing : bool or None
         Whether every measured charge table is nondecreasing (None until
         :meth:`increasing` first looks).
+    creep_caps : dict
+        The creep's lookups (:func:`analyze.physics.creep.creep_network`),
+        filled as met: each capacitance curve C_n(V) on its grid, per node,
+        its devices' gate levels after the edge and the grid's margin, and
+        each device's pass current.
     """
 
     circuit: object
@@ -197,6 +202,7 @@ class ChargeContext:
     receivers: list
     rests: dict
     tables_increasing: bool | None = None
+    creep_caps: dict = field(default_factory=dict, repr=False)
 
     def rest(self, net: str):
         if net not in self.rests:
@@ -253,7 +259,7 @@ def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: Gat
         The conducting devices inside the group with their two channel
         terminals (both in ``group``).  Past the pass limit their measured
         currents keep charging the internal nodes until ``evaluation_ns``,
-        node by node (:func:`_creep_network`); without any, the internal
+        node by node (:func:`analyze.physics.creep.creep_network`); without any, the internal
         nodes stop at the pass limit.
 
     Returns
@@ -413,99 +419,14 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
         v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
 
     def finish():
-        return x_final(_creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns,
-                                      margin))
+        # a node's curve depends on the context and its devices' levels after the edge only
+        keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}
+        return x_final(creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns,
+                                     margin, keys))
 
     # the creep ends each internal node in [v_from, v_eq] (p-type: [v_eq, v_from])
     proven = (v_from <= v_eq if n_type else v_eq <= v_from) and ctx.increasing(group)
     return Settling(v_eq if proven else None, finish)
-
-
-def _creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float) -> dict:
-    """Where each node of the group is after ``t_ns`` of conduction through
-    ``links`` past the pass limit.
-
-    Every internal node starts at ``v_from`` (the end of the fast phase; the
-    dynamic node where conservation puts it) and the node voltages follow
-    C_n(V_n)·dV_n/dt = Σ I_k, I_k the measured channel current of each
-    conducting device from its higher to its lower terminal (gate on; the
-    current table's near terminal is the lower one).  A node deep in a stack
-    is charged through several devices in series, each with little
-    drain–source voltage, so it lags the nodes above it (one lumped
-    internal node would fill as fast as the top node).
-
-    Parameters
-    ----------
-    ctx : ChargeContext
-    group : list of str
-        The dynamic node first.
-    links : list of (str, str, str)
-        Device name and its two terminals, both in the group.
-    q_of : callable
-        ``q_of(node, v)``: the node's charge after the edge over an array
-        of voltages, fC.
-    v_x0 : callable
-        The dynamic node's voltage for the internal nodes at one voltage.
-    v_from, v_eq : float
-        Start of the creep and the equalised voltage (never passed).
-    t_ns : float
-    margin : float
-        How far past the rails voltages may go (the junction bracket).
-
-    Returns
-    -------
-    dict of str to float
-        Each internal node's voltage at ``t_ns``.
-
-    Notes
-    -----
-    C_n(V) from the node's charge tabulated on a grid; currents from
-    :meth:`analyze.physics.device_tables.StageTables.current`; stiff ODE integrated by scipy's BDF method
-    (Curtiss–Hirschfelder backward differentiation; :class:`analyze.physics.stiff.LeanBDF`, the same
-    numbers faster).  Cost: a few hundred
-    evaluations of O(links) interpolations.
-    """
-    from scipy.integrate import solve_ivp
-
-    from analyze.physics.stiff import LeanBDF
-
-    tables = ctx.tables
-    vdd = float(ctx.tech.vdd)
-    n_type = ctx.stage.polarity == "n"
-    grid = np.linspace(-margin, vdd + margin, 2 * len(tables.v) + 1)
-    caps = []
-    for n in group:
-        q = q_of(n, grid)
-        caps.append(np.maximum(np.abs(np.gradient(q, grid)), 1e-6))
-    index = {n: k for k, n in enumerate(group)}
-    funcs = [tables.current(name) for name, _, _ in links]
-    ends = [(index[a], index[b]) for _, a, b in links]
-    sign = 1.0 if n_type else -1.0
-
-    # plain floats in the right-hand side: the same arithmetic as numpy's
-    # on scalars (the same doubles), without its per-call cost
-    grid_l = grid.tolist()
-    caps_l = [c.tolist() for c in caps]
-    nodes = range(len(group))
-
-    def rates(_t, v):
-        v = v.tolist()
-        flow = [0.0] * len(v)
-        for f, (i, j) in zip(funcs, ends):
-            # the receiving node: the lower one (n-type), the higher (p-type)
-            r, g = (j, i) if (v[i] >= v[j]) == n_type else (i, j)
-            cur = f(v[r], v[g])
-            flow[r] += sign * cur
-            flow[g] -= sign * cur
-        c = [interp_point(v[m], grid_l, caps_l[m]) for m in nodes]
-        return np.array(flow) / np.array(c)
-
-    v0 = np.full(len(group), v_from)
-    v0[0] = v_x0(v_from)
-    sol = solve_ivp(rates, (0.0, t_ns), v0, method=LeanBDF, rtol=1e-4, atol=1e-5)
-    v_end = sol.y[:, -1]
-    lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
-    return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}
 
 
 def equalised_bound(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=frozenset()) -> float | None:

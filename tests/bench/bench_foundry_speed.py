@@ -39,7 +39,6 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     import sky130_stages as bs
 
-    from analyze.search.analysis import analyse_circuit
     from analyze.search.cases import arrival_cases
     from analyze.simulate.run import simulate_stage
     from extract.techfile import load_tech
@@ -51,17 +50,7 @@ def main(argv=None) -> int:
           f"{'sim/case':>8} {'sim all (est.)':>14} {'× cold':>8} {'× warm':>8}")
     saved = os.environ.get("DYNSHARE_CACHE")
     for name, circuit in bs.stage_circuits(tech, tmp, args.stages):
-        # cold: an empty cache for the device tables (the pruned models too)
-        os.environ["DYNSHARE_CACHE"] = tempfile.mkdtemp(prefix="cold-", dir=tmp)
-        t0 = time.perf_counter()
-        _, (r,) = analyse_circuit(circuit, tech)
-        cold = time.perf_counter() - t0
-        runs = []
-        for _ in range(args.warm_runs):
-            t0 = time.perf_counter()
-            _, (r,) = analyse_circuit(circuit, tech)
-            runs.append(time.perf_counter() - t0)
-        warm = sorted(runs)[len(runs) // 2]
+        cold, warm, r = cold_and_warm(circuit, tech, tmp, args.warm_runs)
         if saved is None:
             os.environ.pop("DYNSHARE_CACHE", None)
         else:
@@ -79,13 +68,30 @@ def main(argv=None) -> int:
     return 0
 
 
+def cold_and_warm(circuit, tech, tmp, warm_runs):
+    """Seconds of the whole check with an empty cache for the device tables
+    (the pruned models too; DYNSHARE_CACHE is left pointing at it), the
+    median of ``warm_runs`` checks after it, and the last result."""
+    from analyze.search.analysis import analyse_circuit
+
+    os.environ["DYNSHARE_CACHE"] = tempfile.mkdtemp(prefix="cold-", dir=tmp)
+    t0 = time.perf_counter()
+    analyse_circuit(circuit, tech)
+    cold = time.perf_counter() - t0
+    runs = []
+    for _ in range(warm_runs):
+        t0 = time.perf_counter()
+        _, (r,) = analyse_circuit(circuit, tech)
+        runs.append(time.perf_counter() - t0)
+    return cold, sorted(runs)[len(runs) // 2], r
+
+
 def wide(args, tech, tmp) -> None:
     """The whole check of ORs of 2-high legs too wide to simulate (3^legs −
     1 counted patterns): the foundry-model worst case over the level-1
     model's ranked patterns and the bound that proves the verdict."""
     import sky130_stages as bs
 
-    from analyze.search.analysis import analyse_circuit
     from extract.netlist.reader import read_schematic
 
     if not args.wide:
@@ -96,16 +102,7 @@ def wide(args, tech, tmp) -> None:
         with open(path, "w") as fh:
             fh.write(bs.netlist(f"OR{legs}x2", *bs.wide_or(legs)))
         circuit = read_schematic(path, tech)
-        os.environ["DYNSHARE_CACHE"] = tempfile.mkdtemp(prefix="cold-", dir=tmp)
-        t0 = time.perf_counter()
-        analyse_circuit(circuit, tech)
-        cold = time.perf_counter() - t0
-        runs = []
-        for _ in range(args.warm_runs):
-            t0 = time.perf_counter()
-            _, (r,) = analyse_circuit(circuit, tech)
-            runs.append(time.perf_counter() - t0)
-        warm = sorted(runs)[len(runs) // 2]
+        cold, warm, r = cold_and_warm(circuit, tech, tmp, args.warm_runs)
         print(f"{'OR' + str(legs) + 'x2':<8} {2 * legs:>8} {cold:>9.2f}s {warm:>9.3f}s  {r.status}, "
               f"{r.counted_patterns} counted patterns; {r.physics_note}", flush=True)
 

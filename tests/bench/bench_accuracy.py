@@ -42,7 +42,7 @@ def main(argv=None) -> int:
     tmp = tempfile.mkdtemp(prefix="bench-accuracy-")
     techs = characterised_techs(args.corners, tmp)
     rows = []
-    print(f"{'stage':<8} {'corner':<6} {'case':<8} {'analysis':>8} {'sim':>7} {'error':>7} {'level-1':>7} "
+    print(f"{'stage':<8} {'corner':<6} {'case':<8} {'analysis':>8} {'sim':>7} {'error':>8} {'level-1':>7} "
           f"{'an':>4} {'sim':>4}   s")
     for corner in args.corners:
         tech = load_tech(techs[corner])
@@ -68,12 +68,12 @@ def main(argv=None) -> int:
                 an = "PASS" if sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard else "FAIL"
                 sv = "PASS" if sign * (v_sim - sim.threshold_v) >= tech.guard else "FAIL"
                 rows.append((name, corner, case, err, an == sv))
-                print(f"{name:<8} {corner:<6} {case:<8} {fo.worst.v_final:8.3f} {v_sim:7.3f} {err:+7.3f} "
+                print(f"{name:<8} {corner:<6} {case:<8} {fo.worst.v_final:8.3f} {v_sim:7.3f} {err:+8.4f} "
                       f"{r1.worst_case.v_final if r1.worst_case else float('nan'):7.3f} {an:>4} {sv:>4} {dt:5.2f}")
     worst_opt = max(rows, key=lambda r: r[3])
     worst_pes = min(rows, key=lambda r: r[3])
-    print(f"\n{len(rows)} stage/corner/case results; most optimistic {worst_opt[3] * 1000:+.0f} mV "
-          f"({worst_opt[0]} {worst_opt[1]} {worst_opt[2]}), most pessimistic {worst_pes[3] * 1000:+.0f} mV "
+    print(f"\n{len(rows)} stage/corner/case results; most optimistic {worst_opt[3] * 1000:+.1f} mV "
+          f"({worst_opt[0]} {worst_opt[1]} {worst_opt[2]}), most pessimistic {worst_pes[3] * 1000:+.1f} mV "
           f"({worst_pes[0]} {worst_pes[1]} {worst_pes[2]}); verdicts agree in {sum(r[4] for r in rows)} of {len(rows)}")
     return 0
 

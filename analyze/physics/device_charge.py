@@ -218,9 +218,7 @@ class ChargeContext:
         (``c_lin·V`` plus depletion charges, increasing when ``c_lin`` and
         every ``C0`` are not negative: :mod:`analyze.physics.charge`)."""
         if self.tables_increasing is None:
-            t = self.tables
-            self.tables_increasing = all(bool(np.all(np.diff(a) >= 0.0))
-                                         for d in (t.terminals, t.receivers, t.held) for a in d.values())
+            self.tables_increasing = self.tables.nondecreasing()
         if not self.tables_increasing:
             return False
         for n in nodes:

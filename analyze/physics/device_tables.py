@@ -174,6 +174,18 @@ class StageTables:
         self._made[("i", name)] = (table, i)
         return i
 
+    def nondecreasing(self) -> bool:
+        """Whether every charge table (terminals, receivers, held receivers)
+        is nondecreasing over ``v``; worked out once while the tables stay
+        the same arrays."""
+        arrays = tuple(a for d in (self.terminals, self.receivers, self.held) for a in d.values())
+        made = self._made.get("nondecreasing")
+        if made is not None and len(made[0]) == len(arrays) and all(a is b for a, b in zip(made[0], arrays)):
+            return made[1]
+        out = all(bool(np.all(np.diff(a) >= 0.0)) for a in arrays)
+        self._made["nondecreasing"] = (arrays, out)
+        return out
+
     def terminal(self, name: str, vg: float):
         """Charge function ``q(V)`` of ``name``'s tied source/drain at gate ``vg``
         (linear beyond the grid's ends)."""
@@ -213,11 +225,13 @@ class StageTables:
         return q
 
 
-#: Per process: the digest of each pruned model file and the parsed table
-#: files, by path, each with the file's (modification time, size, inode) when
-#: read; used only while that is unchanged.  A stage analysed again in the
-#: same process neither hashes the model file (megabytes) nor parses its
-#: tables again.  Table files kept: the last :data:`_KEPT` read.
+#: Per process: the digest of each pruned model file and the
+#: :class:`StageTables` made from each table file, by path, each with the
+#: file's (modification time, size, inode) when read; used only while that
+#: is unchanged.  A stage analysed again in the same process neither hashes
+#: the model file (megabytes) nor reads its tables again, and gets the same
+#: :class:`StageTables` (read-only arrays; the interpolating functions it
+#: makes are made once).  Table files kept: the last :data:`_KEPT` read.
 _DIGESTS: dict = {}
 _TABLES: "OrderedDict[str, tuple]" = OrderedDict()
 _TABLES_LOCK = threading.Lock()
@@ -247,27 +261,26 @@ def _key(path: str, corner, vdd: float, items) -> str:
     return h.hexdigest()[:24]
 
 
-def _read_tables(path: str) -> dict:
-    """A cached table file, parsed, its tables as read-only arrays (shared
-    by every :class:`StageTables` made from it)."""
-    stamp = _stamp(path)
+def _made(path: str):
+    """The :class:`StageTables` made from the table file ``path`` while the
+    file is as it was then, else None (also when there is no such file)."""
+    try:
+        stamp = _stamp(path)
+    except OSError:
+        return None
     with _TABLES_LOCK:  # threads of one worker may share it
         hit = _TABLES.get(path)
         if hit is not None and hit[0] == stamp:
             _TABLES.move_to_end(path)
             return hit[1]
-    with open(path) as fh:
-        data = json.load(fh)
-    if "q" in data:
-        data["q"] = [_frozen(q) for q in data["q"]]
-    for part in ("i", "held"):
-        if part in data:
-            data[part] = {k: _frozen(v) for k, v in data[part].items()}
+    return None
+
+
+def _keep(path: str, stamp: tuple, tables: "StageTables") -> None:
     with _TABLES_LOCK:
-        _TABLES[path] = (stamp, data)
+        _TABLES[path] = (stamp, tables)
         while len(_TABLES) > _KEPT:
             _TABLES.popitem(last=False)
-    return data
 
 
 def _frozen(values) -> np.ndarray:
@@ -337,30 +350,37 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
         clock_items = [clock_items, round(float(clock["cap_ff"]), 6), round(float(tech.evaluation_ns), 6),
                        stage.polarity]
     key = _key(pruned.path, corner, vdd, [items, clock_items])
-    cache = os.path.join(cache_dir("tables"), key + ".json")
-    grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
-    if os.path.isfile(cache):
-        data = _read_tables(cache)
-    else:
+    cache = os.path.join(cache_dir("tables", create=False), key + ".json")
+    made = _made(cache)
+    if made is not None:
+        return made
+    try:
+        stamp = _stamp(cache)
+        with open(cache) as fh:
+            data = json.load(fh)
+    except FileNotFoundError:
         data = _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
         data["clock_v"] = (None if clock_items is None else
                            _measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck))
+        cache = os.path.join(cache_dir("tables"), key + ".json")
         tmp = cache + f".{os.getpid()}.tmp"
         with open(tmp, "w") as fh:
             json.dump(data, fh)
         os.replace(tmp, cache)
-    out = StageTables(grid)
+        stamp = _stamp(cache)
+    out = StageTables(np.linspace(0.0, vdd, GRID_STEPS + 1))
     out.clock_v = data.get("clock_v")
     for k, it in enumerate(items):
         if it[0] == "t":
-            out.terminals[(it[1], it[5])] = np.asarray(data["q"][k])
+            out.terminals[(it[1], it[5])] = _frozen(data["q"][k])
         elif it[0] == "i":
-            out.currents[it[1]] = np.asarray(data["i"][str(k)])
+            out.currents[it[1]] = _frozen(data["i"][str(k)])
         else:
-            out.receivers[it[1]] = np.asarray(data["q"][k])
+            out.receivers[it[1]] = _frozen(data["q"][k])
             for held in ("lo", "hi"):
-                out.held[(it[1], held)] = np.asarray(data["held"][f"{held}{k}"])
+                out.held[(it[1], held)] = _frozen(data["held"][f"{held}{k}"])
             out.thresholds[it[1]] = float(data["vm"][k])
+    _keep(cache, stamp, out)
     return out
 
 

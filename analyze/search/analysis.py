@@ -210,10 +210,12 @@ def analyze_stage(
     if tech.models is not None and not precharged:
         from analyze.search.foundry import EXHAUSTIVE, RANKED, prepare_stage, solve_candidates
 
+        # the lumped model's patterns, from the model prepared above
+        # (what iter_counted_patterns and worst_patterns would prepare again)
         if counted is not None and counted <= EXHAUSTIVE:
-            candidates, chosen = list(iter_counted_patterns(circuit, stage, tech, constraints)), None
+            candidates, chosen = [model.outcome(values, comp) for values, comp in iter_counted(model, choices)], None
         else:
-            candidates = worst_patterns(circuit, stage, tech, constraints, count=RANKED)
+            candidates = _ranked(model, choices, stage, wc, RANKED)
             chosen = (f"foundry-model worst case taken over the lumped model's {len(candidates)} worst patterns "
                       f"with distinct shared nodes (more than {EXHAUSTIVE} counted patterns)")
         try:
@@ -450,14 +452,21 @@ def worst_patterns(
     the exact search plus the enumeration of at most ``scan`` patterns,
     one evaluation per set of shared nodes.
     """
-    best = find_worst_case(circuit, stage, tech, constraints)
+    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
+    found = worst_case(model, choices)
+    best = None if found is None else model.outcome(found.values, found.component)
+    return _ranked(model, choices, stage, best, count, scan)
+
+
+def _ranked(model, choices, stage, best, count, scan=4096):
+    """:func:`worst_patterns` on a prepared model whose exact worst case
+    ``best`` is known."""
     if best is None:
         return []
     chosen = {tuple(sorted(best.shared_nodes)): best}
     others: dict[tuple, WorstCase] = {}
     # the patterns of iter_counted_patterns(..., limit=scan), each made a
     # WorstCase only when it is the first with its shared nodes
-    model, choices = _prepared(circuit, stage, tech, constraints, frozenset())
     for values, comp in islice(iter_counted(model, choices), max(0, scan)):
         k = tuple(sorted(model.shared_of(comp)))
         if k not in chosen and k not in others:

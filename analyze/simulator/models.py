@@ -50,6 +50,7 @@ import json
 import os
 import re
 import tempfile
+import threading
 from dataclasses import dataclass, field
 
 from extract.errors import InputError
@@ -156,9 +157,9 @@ class PrunedModels:
     cached: bool = False
 
 
-def cache_dir(*parts: str) -> str:
+def cache_dir(*parts: str, create: bool = True) -> str:
     """The cache folder (``$DYNSHARE_CACHE`` or ``~/.cache/dynshare``) or a
-    subfolder of it, created when missing.
+    subfolder of it, created when missing (unless ``create`` is False).
 
     Returns
     -------
@@ -166,7 +167,8 @@ def cache_dir(*parts: str) -> str:
     """
     base = os.environ.get("DYNSHARE_CACHE") or os.path.join(os.path.expanduser("~"), ".cache", "dynshare")
     path = os.path.join(base, *parts)
-    os.makedirs(path, exist_ok=True)
+    if create:
+        os.makedirs(path, exist_ok=True)
     return path
 
 
@@ -443,15 +445,38 @@ def _scale(statements: list[Statement]) -> float | None:
     return scale
 
 
-def _fresh(files: dict) -> bool:
-    for path, (size, mtime) in files.items():
-        try:
-            st = os.stat(path)
-        except OSError:
-            return False
-        if (st.st_size, st.st_mtime_ns) != (size, mtime):
-            return False
+def _fresh(files) -> bool:
+    """True when every ``(path, size, mtime in ns)`` of ``files`` still
+    holds: one ``os.stat`` per file."""
+    stat = os.stat
+    try:
+        for path, size, mtime in files:
+            st = stat(path)
+            if st.st_size != size or st.st_mtime_ns != mtime:
+                return False
+    except OSError:
+        return False
     return True
+
+
+def _stamp(path: str):
+    """``(size, mtime in ns, inode)`` of a file, None when it cannot be stat'ed."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return st.st_size, st.st_mtime_ns, st.st_ino
+
+
+#: Per process: each cache entry as last read or written, by manifest path:
+#: the stamps of the manifest and of the pruned file, the files the library
+#: was read from with their sizes and modification times, and what the
+#: manifest holds.  A hit reads neither the manifest nor the key's JSON
+#: again; it is used only while every one of those files is unchanged.
+_MEMO: dict = {}
+_MEMO_LOCK = threading.Lock()
+#: Per process: the cache key of (library, corner, devices).
+_KEYS: dict = {}
 
 
 def prune_models(models: Models, corner: str | None, devices) -> PrunedModels:
@@ -497,27 +522,45 @@ def prune_models(models: Models, corner: str | None, devices) -> PrunedModels:
     The cache key is the library path, the section, the devices and this
     module's format; the entry records size and modification time of every
     file read and is used only while all of them are unchanged.  A hit
-    reads no library file (see :func:`parses_done`).  A miss costs one
+    reads no library file (see :func:`parses_done`); a hit on an entry
+    this process has read or written before reads no file at all (its
+    manifest is remembered with the manifest's and the pruned file's size,
+    modification time and inode): it costs one ``os.stat`` per library
+    file, about 0.4 ms for the 170 files of a sky130 corner.  A miss costs one
     pass over every line of the section's files (seconds for a large
     foundry library) plus a regular-expression scan of the kept text.
     """
     library = os.path.abspath(models.library)
     devices = tuple(devices)
-    wanted = sorted({d.lower() for d in devices})
-    key_text = json.dumps([library, corner, wanted, _FORMAT])
-    key = hashlib.sha256(key_text.encode()).hexdigest()[:24]
-    folder = cache_dir("models")
+    ask = (library, corner, devices)
+    known = _KEYS.get(ask)
+    if known is None:
+        wanted = sorted({d.lower() for d in devices})
+        key_text = json.dumps([library, corner, wanted, _FORMAT])
+        known = _KEYS[ask] = (key_text, hashlib.sha256(key_text.encode()).hexdigest()[:24])
+    key_text, key = known
+    folder = cache_dir("models", create=False)
     manifest_path = os.path.join(folder, f"{key}.json")
     spice_path = os.path.join(folder, f"{key}.spice")
+    hit = _MEMO.get(manifest_path)
+    if hit is not None and hit[0] == _stamp(manifest_path) and hit[1] == _stamp(spice_path) and _fresh(hit[2]):
+        kinds, scale, lmin = hit[3]
+        return PrunedModels(spice_path, library, corner, devices, dict(kinds), scale, dict(lmin), cached=True)
     try:
+        stamp = _stamp(manifest_path)
         with open(manifest_path, encoding="utf-8") as fh:
             manifest = json.load(fh)
-        if manifest.get("key") == key_text and os.path.exists(spice_path) and _fresh(
-                {p: tuple(v) for p, v in manifest["files"].items()}):
-            return PrunedModels(spice_path, library, corner, devices, manifest["kinds"], manifest["scale"],
-                                manifest["min_length_m"], cached=True)
+        files = tuple((p, *v) for p, v in manifest["files"].items())
+        spice_stamp = _stamp(spice_path)
+        if manifest.get("key") == key_text and None not in (stamp, spice_stamp) and _fresh(files):
+            held = (manifest["kinds"], manifest["scale"], manifest["min_length_m"])
+            with _MEMO_LOCK:
+                _MEMO[manifest_path] = (stamp, spice_stamp, files, held)
+            return PrunedModels(spice_path, library, corner, devices, dict(held[0]), held[1], dict(held[2]),
+                                cached=True)
     except (OSError, ValueError, KeyError, TypeError):
         pass
+    cache_dir("models")  # created for the new entry
     statements, files = read_library(Models(library=library, corners=models.corners,
                                             nmos=models.nmos, pmos=models.pmos), corner)
     keep, kinds, lmin = _keep(statements, list(devices), models.library, corner)
@@ -534,4 +577,8 @@ def prune_models(models: Models, corner: str | None, devices) -> PrunedModels:
     _write_atomic(spice_path, text)
     _write_atomic(manifest_path, json.dumps({"key": key_text, "files": files, "kinds": kinds,
                                              "scale": scale, "min_length_m": lmin}))
-    return PrunedModels(spice_path, library, corner, devices, kinds, scale, lmin, cached=False)
+    stamps = (_stamp(manifest_path), _stamp(spice_path))
+    if None not in stamps:
+        with _MEMO_LOCK:
+            _MEMO[manifest_path] = (*stamps, tuple((p, *v) for p, v in files.items()), (kinds, scale, lmin))
+    return PrunedModels(spice_path, library, corner, devices, dict(kinds), scale, dict(lmin), cached=False)

@@ -64,6 +64,9 @@ P_SIDE = Side("p", "pmos", "nmos", "ground", "power", "predischarge", "header")
 SIDES = (N_SIDE, P_SIDE)
 
 _RAILS = ("power", "ground")
+#: Circuits of at most this many devices get their components in plain
+#: Python (:class:`_SmallComponents`), larger ones with scipy.
+SMALL = 256
 
 
 @dataclass
@@ -275,7 +278,9 @@ class Topology:
     def _comps(self, dtype: str | None) -> "_Components":
         comps = self._components.get(dtype)
         if comps is None:
-            comps = self._components[dtype] = _Components(self, ("nmos", "pmos") if dtype is None else (dtype,))
+            types = ("nmos", "pmos") if dtype is None else (dtype,)
+            make = _SmallComponents if len(self.devices) <= SMALL else _Components
+            comps = self._components[dtype] = make(self, types)
         return comps
 
     def component_of(self, dtype: str | None, net: str) -> Component | None:
@@ -396,6 +401,83 @@ class _Components:
             if (d.drain in rails) != (d.source in rails):
                 rail_by_gate[d.gate].append(i)
         return Component(nets, members, Counter([d.gate for d in mine]), rail_by_gate)
+
+
+class _SmallComponents(_Components):
+    """:class:`_Components` of a small circuit, in plain Python: the same
+    numbering (scipy labels a component by its lowest net number), the
+    same member order, without the array set-up that dominates for a
+    stage of a few devices.  A union-find with path halving over the
+    nets, O(devices · α)."""
+
+    def __init__(self, topo: Topology, types: tuple[str, ...]):
+        self.devices, self.rails = topo.devices, topo._rails
+        rails = self.rails
+        ids: dict[str, int] = {}
+        ends = [(ids.setdefault(d.drain, len(ids)), ids.setdefault(d.source, len(ids))) for d in self.devices]
+        names = list(ids)
+        rail = [n in rails for n in names]
+        n = len(names)
+        parent = list(range(n))
+
+        def root(k):
+            while parent[k] != k:
+                parent[k] = parent[parent[k]]
+                k = parent[k]
+            return k
+
+        first = [-1] * n  # first place of each net among the members' channel terminals off the rails
+        members = []
+        place = 0
+        for i, d in enumerate(self.devices):
+            if d.type not in types:
+                continue
+            members.append(i)
+            a, b = ends[i]
+            ra, rb = rail[a], rail[b]
+            if not ra and first[a] < 0:
+                first[a] = place
+            if not rb and first[b] < 0:
+                first[b] = place + 1
+            place += 2
+            if not ra and not rb:
+                x, y = root(a), root(b)
+                if x != y:
+                    parent[max(x, y)] = min(x, y)
+        number: dict[int, int] = {}
+        label = []
+        for k in range(n):
+            r = root(k)
+            c = number.setdefault(r, len(number))
+            label.append(c if first[k] >= 0 else -1)
+        devs: list[list[int]] = [[] for _ in range(n)]
+        for i in members:
+            a, b = ends[i]
+            ra, rb = rail[a], rail[b]
+            if not (ra and rb):
+                devs[label[b] if ra else label[a]].append(i)
+        nets: list[list[int]] = [[] for _ in range(n)]
+        for k in sorted((k for k in range(n) if first[k] >= 0), key=first.__getitem__):
+            nets[label[k]].append(k)
+        self.ids, self.names, self.label = ids, names, label
+        self._devs, self._nets = devs, nets
+
+    def label_of(self, net: str) -> int | None:
+        k = self.ids.get(net)
+        if k is None:
+            return None
+        c = self.label[k]
+        return None if c < 0 else c
+
+    def make(self, c: int) -> Component:
+        rails, names = self.rails, self.names
+        members = list(self._devs[c])
+        mine = [self.devices[i] for i in members]
+        rail_by_gate: dict[str, list[int]] = defaultdict(list)
+        for i, d in zip(members, mine):
+            if (d.drain in rails) != (d.source in rails):
+                rail_by_gate[d.gate].append(i)
+        return Component([names[k] for k in self._nets[c]], members, Counter([d.gate for d in mine]), rail_by_gate)
 
 
 _KINDS = {"nmos": 0, "pmos": 1}

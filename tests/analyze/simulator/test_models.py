@@ -7,6 +7,8 @@ for the corner (``sky130_fd_pr/cells/<device>/..._<corner>.pm3.spice`` and
 the device's mismatch file, with ``mc_mm_switch=0 mc_pr_switch=0`` as the
 library's sections set them), written out in the test."""
 
+import dataclasses
+import json
 import os
 import time
 
@@ -135,6 +137,54 @@ def test_cache_hit_reads_nothing_and_a_changed_file_is_read_again(tmp_path, monk
     changed = prune_models(Models(library=lib), "tt", ["wrapper"])
     assert not changed.cached and parses_done() == count + 1
     assert ".param half=0.25" in _body(changed.path)
+
+
+def test_a_remembered_entry_reads_no_file_and_still_sees_every_change(tmp_path, monkeypatch):
+    # By hand: the library here is read from four files (main.lib,
+    # sub/devices.spice, sub/more.spice, shared.lib); a change to any of
+    # them, or to the cache entry itself, must be seen at the next call of
+    # the same process, however the entry was remembered.
+    monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache"))
+    lib = _library(tmp_path)
+    first = prune_models(Models(library=lib), "tt", ["wrapper"])
+
+    class NoManifest:  # the manifest is not read again for a remembered entry
+        dumps = staticmethod(models_mod.json.dumps)
+
+        @staticmethod
+        def load(*_):
+            raise AssertionError("manifest read")
+
+    real_json = models_mod.json
+    monkeypatch.setattr(models_mod, "json", NoManifest)
+    count = parses_done()
+    again = prune_models(Models(library=lib), "tt", ["wrapper"])
+    assert again.cached and again == dataclasses.replace(first, cached=True) and parses_done() == count
+    monkeypatch.setattr(models_mod, "json", real_json)
+
+    def bump(path):
+        os.utime(path, ns=(time.time_ns(), time.time_ns() + 10**9))
+
+    # a file two includes deep, written in place
+    more = tmp_path / "sub" / "more.spice"
+    more.write_text(more.read_text().replace("base_slope=0", "base_slope=1"))
+    bump(more)
+    changed = prune_models(Models(library=lib), "tt", ["wrapper"])
+    assert not changed.cached and parses_done() == count + 1 and ".param base_slope=1" in _body(changed.path)
+    assert prune_models(Models(library=lib), "tt", ["wrapper"]).cached and parses_done() == count + 1
+    # the pruned file removed: written again
+    os.unlink(changed.path)
+    rewritten = prune_models(Models(library=lib), "tt", ["wrapper"])
+    assert not rewritten.cached and os.path.isfile(rewritten.path) and parses_done() == count + 2
+    # the manifest rewritten by another process: what it now says is used
+    manifest = rewritten.path[:-len(".spice")] + ".json"
+    data = json.loads(open(manifest).read())
+    data["scale"] = 2e-6
+    with open(manifest, "w") as fh:
+        json.dump(data, fh)
+    bump(manifest)
+    reread = prune_models(Models(library=lib), "tt", ["wrapper"])
+    assert reread.cached and reread.scale == 2e-6 and parses_done() == count + 2
 
 
 def test_errors_name_the_library_and_what(tmp_path, monkeypatch):

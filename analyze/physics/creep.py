@@ -40,6 +40,7 @@ from scipy.integrate import ODEintWarning, odeint, solve_ivp
 
 __all__ = ["creep_network", "integrate_stiff", "uniform_lookup", "pass_current"]
 
+
 def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1e-5,
                     max_steps: int = 5000) -> np.ndarray:
     """The state at ``t_end`` of dy/dt = rates(t, y), y(0) = y0, for a
@@ -91,6 +92,8 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
         warnings.simplefilter("ignore", ODEintWarning)
         y, info = odeint(rates, y0, [0.0, float(t_end)], rtol=rtol, atol=atol, mxstep=int(max_steps),
                          full_output=True, tfirst=True)
+    # (scipy's message for LSODA's success; any other, or a scipy that words
+    # it otherwise, takes the BDF path: slower, never wrong)
     if info["message"] == "Integration successful." and np.isfinite(y[-1]).all():
         return np.array(y[-1], dtype=float)
     sol = solve_ivp(rates, (0.0, float(t_end)), y0, method="BDF", rtol=rtol, atol=atol)

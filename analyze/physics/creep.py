@@ -78,7 +78,9 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
     BDF, whose Python steps cost more than the right-hand side.  Where
     LSODA reports a failure (too many steps, repeated error-test or
     convergence failures), the solve is done again with ``solve_ivp``'s BDF
-    at the same tolerances; LSODA's warning of the failure is not shown
+    at the same tolerances (where that fails too, its state where it
+    stopped is returned, as the solver did before LSODA); LSODA's warning
+    of the failure is not shown
     (a ``warnings.catch_warnings`` block: the process's warning filters
     for the length of the call).  Cost: O(steps × (rates + n³)), some fifty to a
     hundred steps for a creep.
@@ -93,7 +95,7 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
         y, info = odeint(rates, y0, [0.0, float(t_end)], rtol=rtol, atol=atol, mxstep=int(max_steps),
                          full_output=True, tfirst=True)
     # (scipy's message for LSODA's success; any other, or a scipy that words
-    # it otherwise, takes the BDF path: slower, never wrong)
+    # it otherwise, takes the BDF path: slower, the same answer)
     if info["message"] == "Integration successful." and np.isfinite(y[-1]).all():
         return np.array(y[-1], dtype=float)
     sol = solve_ivp(rates, (0.0, float(t_end)), y0, method="BDF", rtol=rtol, atol=atol)
@@ -232,6 +234,8 @@ def uniform_lookup(grid, values):
     >>> g = uniform_lookup([0.0, 0.1, 1.0], [0.0, 1.0, 10.0])  # uneven: bisection
     >>> round(g(0.55), 12)
     5.5
+    >>> uniform_lookup([0.0, 1e-10, 1e-9], [0.0, 1.0, 2.0])(5e-11)  # uneven at any scale
+    0.5
     """
     grid = [float(x) for x in grid]
     values = [float(y) for y in values]
@@ -252,7 +256,7 @@ def _cell_finder(grid: list):
     NaN."""
     n = len(grid)
     x0, step = grid[0], (grid[-1] - grid[0]) / (n - 1)
-    even = all(abs(grid[k] - (x0 + k * step)) <= 1e-9 * max(1.0, abs(grid[-1])) for k in range(n))
+    even = step > 0.0 and all(abs(grid[k] - (x0 + k * step)) <= 1e-9 * step for k in range(n))
     last = n - 1
 
     if even:

@@ -31,14 +31,14 @@ Nothing to integrate over an empty window:
 
 from __future__ import annotations
 
-import math
 import warnings
-from bisect import bisect_right
 
 import numpy as np
 from scipy.integrate import ODEintWarning, odeint, solve_ivp
 
-__all__ = ["creep_network", "integrate_stiff", "uniform_lookup", "pass_current"]
+from analyze.physics.lookup import uniform_lookup
+
+__all__ = ["creep_network", "integrate_stiff"]
 
 
 def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1e-5,
@@ -149,7 +149,7 @@ def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_n
     C_n(V) = |dQ_n/dV| from the node's charge tabulated on a grid (charge
     conservation's own Q(V), so the creep moves the charge the solver
     counts); currents from
-    :meth:`analyze.physics.device_tables.StageTables.current`; fC / µA =
+    :meth:`analyze.physics.device_tables.StageTables.pass_current`; fC / µA =
     1 ns, so time is in ns.  The stiff ODE is integrated by
     :func:`integrate_stiff` with a relative tolerance of 1e-4 and an
     absolute one of 10 µV.  Cost: some hundred evaluations of O(links)
@@ -169,12 +169,7 @@ def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_n
             if key is not None:
                 memo[key] = f
         cap_at.append(f)
-    currents = []
-    for name, _, _ in links:
-        f = memo.get(("current", name))
-        if f is None:
-            f = memo[("current", name)] = pass_current(tables, name)
-        currents.append(f)
+    currents = [tables.pass_current(name) for name, _, _ in links]
     index = {n: k for k, n in enumerate(group)}
     ends = [(index[a], index[b]) for _, a, b in links]
     sign = 1.0 if n_type else -1.0
@@ -197,146 +192,3 @@ def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_n
     v_end = integrate_stiff(rates, v0, t_ns)
     lo, hi = (v_from, v_eq) if n_type else (v_eq, v_from)
     return {n: float(np.clip(v_end[index[n]], lo, hi)) for n in group[1:]}
-
-
-def uniform_lookup(grid, values):
-    """``f(x)``: piecewise-linear interpolation of ``values`` over ``grid``,
-    held at the end values outside it, on plain floats.
-
-    Parameters
-    ----------
-    grid : array_like
-        Increasing; evenly spaced for the fast path (an index from
-        (x − x0)/step), else looked up by bisection.
-    values : array_like
-        Same length as ``grid`` (at least 2).
-
-    Returns
-    -------
-    callable
-        Float -> float (NaN for NaN).
-
-    Notes
-    -----
-    What ``numpy.interp`` computes, to rounding (the weight t = u − j of
-    the cell j = ⌊u⌋, u = (x − x0)/step, in place of the slope times the
-    offset), at a fraction of its per-call cost: the creep's right-hand
-    side looks tables up thousands of times per stage.  O(1) per call
-    (O(log n) on an uneven grid).
-
-    Examples
-    --------
-    >>> f = uniform_lookup([0.0, 0.5, 1.0], [1.0, 3.0, 2.0])
-    >>> [f(x) for x in (-1.0, 0.25, 0.5, 0.75, 1.0, 2.0)]
-    [1.0, 2.0, 3.0, 2.5, 2.0, 2.0]
-    >>> f(float("nan")) != f(float("nan"))
-    True
-    >>> g = uniform_lookup([0.0, 0.1, 1.0], [0.0, 1.0, 10.0])  # uneven: bisection
-    >>> round(g(0.55), 12)
-    5.5
-    >>> uniform_lookup([0.0, 1e-10, 1e-9], [0.0, 1.0, 2.0])(5e-11)  # uneven at any scale
-    0.5
-    """
-    grid = [float(x) for x in grid]
-    values = [float(y) for y in values]
-    cell = _cell_finder(grid)
-
-    def f(x):
-        j, t = cell(x)
-        if j is None:
-            return math.nan
-        lo = values[j]
-        return lo + (values[j + 1] - lo) * t
-    return f
-
-
-def _cell_finder(grid: list):
-    """``cell(x) -> (j, t)``: the grid cell of ``x`` and its weight in it,
-    clamped to the first and last cell (t in [0, 1]); (None, nan) for
-    NaN."""
-    n = len(grid)
-    x0, step = grid[0], (grid[-1] - grid[0]) / (n - 1)
-    even = step > 0.0 and all(abs(grid[k] - (x0 + k * step)) <= 1e-9 * step for k in range(n))
-    last = n - 1
-
-    if even:
-        inv = 1.0 / step
-
-        def cell(x):
-            u = (x - x0) * inv
-            if u != u:
-                return None, math.nan
-            if u <= 0.0:
-                return 0, 0.0
-            if u >= last:
-                return last - 1, 1.0
-            j = int(u)
-            return j, u - j
-        return cell
-
-    def cell(x):
-        if x != x:
-            return None, math.nan
-        j = bisect_right(grid, x) - 1
-        if j < 0:
-            return 0, 0.0
-        if j >= last:
-            return last - 1, 1.0
-        return j, (x - grid[j]) / (grid[j + 1] - grid[j])
-    return cell
-
-
-def pass_current(tables, name: str):
-    """``I(v_near, v_far)`` of device ``name``, µA: what
-    :meth:`analyze.physics.device_tables.StageTables.current` gives, to
-    rounding, on plain floats with ``math`` (the creep's inner loop).
-
-    Parameters
-    ----------
-    tables : StageTables
-    name : str
-        A device with a current table.
-
-    Returns
-    -------
-    callable
-        ``I(v_near, v_far)``: log-interpolated in the near voltage, log–log
-        in |V_DS| = |v_far − v_near|, proportional to V_DS below the grid's
-        first step; 0 at V_DS = 0.
-
-    Notes
-    -----
-    The same table and the same interpolation as ``StageTables.current``
-    (its docstring gives the source of the forms); only the arithmetic's
-    order differs.  O(log rows) per call.
-    """
-    table = np.asarray(tables.currents[name], dtype=float)
-    logs = np.log(np.maximum(table, 1e-15)).tolist()
-    v_ds = [float(x) for x in tables.v_ds]
-    lds = [math.log(x) for x in v_ds]
-    inv_steps = [1.0 / (lds[k + 1] - lds[k]) for k in range(len(lds) - 1)]
-    first, rows = v_ds[0], len(lds) - 1
-    inv_first = 1.0 / first
-    cell = _cell_finder([float(x) for x in tables.v])
-    exp, log = math.exp, math.log
-
-    def i(v_near, v_far):
-        vds = abs(v_far - v_near)
-        if vds <= 0.0:
-            return 0.0
-        j, t = cell(v_near)
-        if j is None or vds != vds:
-            return math.nan
-        if vds < first:
-            r = logs[0]
-            return exp(r[j] + (r[j + 1] - r[j]) * t) * vds * inv_first
-        lx = log(vds)
-        m = bisect_right(lds, lx) - 1
-        if m >= rows:
-            r = logs[rows]
-            return exp(r[j] + (r[j + 1] - r[j]) * t)
-        r0, r1 = logs[m], logs[m + 1]
-        y0 = r0[j] + (r0[j + 1] - r0[j]) * t
-        y1 = r1[j] + (r1[j + 1] - r1[j]) * t
-        return exp(y0 + (y1 - y0) * (lx - lds[m]) * inv_steps[m])
-    return i

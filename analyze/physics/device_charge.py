@@ -189,8 +189,7 @@ class ChargeContext:
     creep_caps : dict
         The creep's lookups (:func:`analyze.physics.creep.creep_network`),
         filled as met: each capacitance curve C_n(V) on its grid, per node,
-        its devices' gate levels after the edge and the grid's margin, and
-        each device's pass current.
+        its devices' gate levels after the edge and the grid's margin.
     """
 
     circuit: object

@@ -52,6 +52,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import threading
 from bisect import bisect_right
@@ -60,7 +61,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from analyze.physics.lookup import interp_point, interp_rows
+from analyze.physics.lookup import cell_finder, interp_point, interp_rows
 from extract.tech import Tech
 
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
@@ -172,6 +173,68 @@ class StageTables:
                     y = interp_rows(lx, lds, row)
             return float(np.exp(y))
         self._made[("i", name)] = (table, i)
+        return i
+
+    def pass_current(self, name: str):
+        """``I(v_near, v_far)`` of device ``name``, µA: what :meth:`current`
+        gives, to rounding, on plain floats with ``math`` (the creep's inner
+        loop, :mod:`analyze.physics.creep`); made once per table.
+
+        Parameters
+        ----------
+        name : str
+            A device with a current table.
+
+        Returns
+        -------
+        callable
+            ``I(v_near, v_far)``: log-interpolated in the near voltage, log–log
+            in |V_DS| = |v_far − v_near|, proportional to V_DS below the grid's
+            first step; 0 at V_DS = 0.
+
+        Notes
+        -----
+        The same table and the same interpolation as :meth:`current` (its
+        docstring gives the source of the forms), which stays numpy.interp's
+        arithmetic bit for bit for the bound of
+        :func:`analyze.physics.device_charge.equalised_bound`; only the
+        arithmetic's order differs (an index from the even grid, ``math.exp``),
+        and a change of the forms is a change of both.  O(log rows) per call.
+        """
+        table = self.currents[name]
+        made = self._made.get(("pass", name))
+        if made is not None and made[0] is table:
+            return made[1]
+        table = np.asarray(table, dtype=float)
+        logs = np.log(np.maximum(table, 1e-15)).tolist()
+        v_ds = [float(x) for x in self.v_ds]
+        lds = [math.log(x) for x in v_ds]
+        inv_steps = [1.0 / (lds[k + 1] - lds[k]) for k in range(len(lds) - 1)]
+        first, rows = v_ds[0], len(lds) - 1
+        inv_first = 1.0 / first
+        cell = cell_finder([float(x) for x in self.v])
+        exp, log = math.exp, math.log
+
+        def i(v_near, v_far):
+            vds = abs(v_far - v_near)
+            if vds <= 0.0:
+                return 0.0
+            j, t = cell(v_near)
+            if j is None or vds != vds:
+                return math.nan
+            if vds < first:
+                r = logs[0]
+                return exp(r[j] + (r[j + 1] - r[j]) * t) * vds * inv_first
+            lx = log(vds)
+            m = bisect_right(lds, lx) - 1
+            if m >= rows:
+                r = logs[rows]
+                return exp(r[j] + (r[j + 1] - r[j]) * t)
+            r0, r1 = logs[m], logs[m + 1]
+            y0 = r0[j] + (r0[j + 1] - r0[j]) * t
+            y1 = r1[j] + (r1[j + 1] - r1[j]) * t
+            return exp(y0 + (y1 - y0) * (lx - lds[m]) * inv_steps[m])
+        self._made[("pass", name)] = (self.currents[name], i)
         return i
 
     def nondecreasing(self) -> bool:

@@ -389,18 +389,22 @@ class _Components:
         c = int(self.label[k])
         return None if c < 0 else c
 
-    def make(self, c: int) -> Component:
-        devs, rails, names = self.devices, self.rails, self.names
+    def parts(self, c: int) -> tuple[list[int], list[int]]:
+        """Component ``c``'s net numbers and member device indices, in order."""
         lo, hi = self.net_cuts[c:c + 2].tolist()
-        nets = [names[k] for k in self.net_sorted[lo:hi].tolist()]
+        nets = self.net_sorted[lo:hi].tolist()
         lo, hi = self.dev_cuts[c:c + 2].tolist()
-        members = self.dev_sorted[lo:hi].tolist()
-        mine = [devs[i] for i in members]
+        return nets, self.dev_sorted[lo:hi].tolist()
+
+    def make(self, c: int) -> Component:
+        rails, names = self.rails, self.names
+        nets, members = self.parts(c)
+        mine = [self.devices[i] for i in members]
         rail_by_gate: dict[str, list[int]] = defaultdict(list)
         for i, d in zip(members, mine):
             if (d.drain in rails) != (d.source in rails):
                 rail_by_gate[d.gate].append(i)
-        return Component(nets, members, Counter([d.gate for d in mine]), rail_by_gate)
+        return Component([names[k] for k in nets], members, Counter([d.gate for d in mine]), rail_by_gate)
 
 
 class _SmallComponents(_Components):
@@ -462,22 +466,8 @@ class _SmallComponents(_Components):
         self.ids, self.names, self.label = ids, names, label
         self._devs, self._nets = devs, nets
 
-    def label_of(self, net: str) -> int | None:
-        k = self.ids.get(net)
-        if k is None:
-            return None
-        c = self.label[k]
-        return None if c < 0 else c
-
-    def make(self, c: int) -> Component:
-        rails, names = self.rails, self.names
-        members = list(self._devs[c])
-        mine = [self.devices[i] for i in members]
-        rail_by_gate: dict[str, list[int]] = defaultdict(list)
-        for i, d in zip(members, mine):
-            if (d.drain in rails) != (d.source in rails):
-                rail_by_gate[d.gate].append(i)
-        return Component([names[k] for k in self._nets[c]], members, Counter([d.gate for d in mine]), rail_by_gate)
+    def parts(self, c: int) -> tuple[list[int], list[int]]:
+        return self._nets[c], list(self._devs[c])
 
 
 _KINDS = {"nmos": 0, "pmos": 1}

@@ -4,6 +4,8 @@ Source: numpy.interp itself — the lookup must return the very same double
 (compared bit for bit), so the foundry-model solver's results do not move
 when it uses the lookup instead; brute force over random tables and points,
 the grid points and their neighbouring doubles, and points off both ends.
+The creep's lookups on plain floats (uniform_lookup, StageTables.pass_current)
+agree with numpy.interp and StageTables.current to rounding.
 """
 
 from __future__ import annotations
@@ -11,6 +13,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -92,3 +95,42 @@ def test_pass_current_lookup_bit_for_bit_against_numpy():
                 a, b = want(x, far), got(x, far)
                 assert (math.isnan(a) and math.isnan(b)) or _same(a, b), (x, far)
         assert math.isnan(got(float("nan"), 1.0)) and math.isnan(want(float("nan"), 1.0))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_uniform_lookup_is_numpy_interp(seed):
+    """Source: numpy.interp, on even and uneven grids, inside, outside and
+    on the grid points."""
+    from analyze.physics.lookup import uniform_lookup
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(2, 40))
+    grid = np.linspace(-0.3, 2.1, n) if seed % 2 == 0 else np.cumsum(rng.uniform(0.01, 0.3, n))
+    values = rng.normal(size=n)
+    f = uniform_lookup(grid, values)
+    xs = np.concatenate([rng.uniform(grid[0] - 1, grid[-1] + 1, 500), grid])
+    got = np.array([f(float(x)) for x in xs])
+    assert np.allclose(got, np.interp(xs, grid, values), rtol=1e-12, atol=1e-12)
+
+
+def test_pass_current_is_the_tables_current():
+    """Source: StageTables.current (numpy.interp's arithmetic, checked bit for
+    bit in test_lookup.py) on a synthetic table of subthreshold-like
+    currents: the fast form agrees to rounding everywhere, below the
+    V_DS grid's first step, past its last, outside the voltage grid and at
+    V_DS = 0."""
+    from analyze.physics.device_tables import VDS_GRID, StageTables
+
+    v = np.linspace(0.0, 1.8, 37)
+    vds = np.asarray(VDS_GRID)
+    # I = I0·exp((VG − VT − V)/(n·VT_th))·(1 − exp(−VDS/VT_th)), a subthreshold form (EKV, from memory)
+    table = 0.1 * np.exp((1.8 - 0.45 - v[None, :]) / (1.4 * 0.0259)) * (1.0 - np.exp(-vds[:, None] / 0.0259))
+    tables = StageTables(v=v, currents={"M1": table}, v_ds=vds)
+    ref, fast = tables.current("M1"), tables.pass_current("M1")
+    rng = np.random.default_rng(1)
+    near = np.concatenate([rng.uniform(-0.2, 2.0, 400), v])
+    far = near + np.concatenate([10.0 ** rng.uniform(-4, 0.4, 400), 10.0 ** rng.uniform(-4, 0.4, len(v))])
+    for a, b in zip(near.tolist(), far.tolist()):
+        assert fast(a, b) == pytest.approx(ref(a, b), rel=1e-11)
+    assert fast(0.7, 0.7) == ref(0.7, 0.7) == 0.0
+    assert math.isnan(fast(float("nan"), 1.0))

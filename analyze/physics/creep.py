@@ -38,11 +38,11 @@ from scipy.integrate import ODEintWarning, odeint, solve_ivp
 
 from analyze.physics.lookup import uniform_lookup
 
-__all__ = ["creep_network", "integrate_stiff"]
+__all__ = ["creep_network", "integrate_stiff", "node_capacitances"]
 
 
 def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1e-5,
-                    max_steps: int = 5000) -> np.ndarray:
+                    max_steps: int = 5000, times=None) -> np.ndarray:
     """The state at ``t_end`` of dy/dt = rates(t, y), y(0) = y0, for a
     small stiff system.
 
@@ -59,11 +59,14 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
         the unit of ``y``).
     max_steps : int
         Steps LSODA may take before it gives up.
+    times : sequence of float, optional
+        Increasing times from 0 to ``t_end``: the states at each are
+        returned (the solver's own interpolation between its steps).
 
     Returns
     -------
     ndarray
-        y(t_end).
+        y(t_end); with ``times``, one row per time.
 
     Notes
     -----
@@ -87,19 +90,48 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
     """
     y0 = np.asarray(y0, dtype=float)
     if not t_end > 0.0:
-        return y0.copy()
+        return y0.copy() if times is None else np.tile(y0, (len(times), 1))
+    at = [0.0, float(t_end)] if times is None else [float(t) for t in times]
     with warnings.catch_warnings():
         # a failure is handled below (scipy's BDF takes over): its warning
         # is kept off the user's stderr
         warnings.simplefilter("ignore", ODEintWarning)
-        y, info = odeint(rates, y0, [0.0, float(t_end)], rtol=rtol, atol=atol, mxstep=int(max_steps),
+        y, info = odeint(rates, y0, at, rtol=rtol, atol=atol, mxstep=int(max_steps),
                          full_output=True, tfirst=True)
     # (scipy's message for LSODA's success; any other, or a scipy that words
     # it otherwise, takes the BDF path: slower, the same answer)
-    if info["message"] == "Integration successful." and np.isfinite(y[-1]).all():
-        return np.array(y[-1], dtype=float)
-    sol = solve_ivp(rates, (0.0, float(t_end)), y0, method="BDF", rtol=rtol, atol=atol)
-    return np.array(sol.y[:, -1], dtype=float)
+    if info["message"] == "Integration successful." and np.isfinite(y).all():
+        return np.array(y[-1] if times is None else y, dtype=float)
+    sol = solve_ivp(rates, (0.0, at[-1]), y0, method="BDF", rtol=rtol, atol=atol,
+                    t_eval=None if times is None else at)
+    if times is None:
+        return np.array(sol.y[:, -1], dtype=float)
+    out = np.array(sol.y.T, dtype=float)
+    if len(out) < len(at):  # stopped early: the last state it reached for the rest
+        out = np.vstack([out, np.tile(out[-1] if len(out) else y0, (len(at) - len(out), 1))])
+    return out
+
+
+def node_capacitances(ctx, group, q_of, margin: float, keys=None) -> list:
+    """Per node of ``group``, ``C_n(V) = |dQ_n/dV|`` (fF, at least 1e-6) as
+    a float lookup over −margin … VDD + margin: the gradient of
+    ``q_of(node, ·)`` on a grid twice as fine as the tables'.  With
+    ``keys`` (per node, what its curve depends on besides the context),
+    each is made once per context (kept in ``ctx.creep_caps``).  O(grid)
+    per curve made."""
+    vdd = float(ctx.tech.vdd)
+    grid = np.linspace(-margin, vdd + margin, 2 * len(ctx.tables.v) + 1)
+    memo = ctx.creep_caps
+    out = []
+    for n in group:
+        key = (keys[n], margin, len(grid)) if keys is not None else None
+        f = memo.get(key)
+        if f is None:
+            f = uniform_lookup(grid, np.maximum(np.abs(np.gradient(q_of(n, grid), grid)), 1e-6))
+            if key is not None:
+                memo[key] = f
+        out.append(f)
+    return out
 
 
 def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_ns: float, margin: float,
@@ -156,19 +188,8 @@ def creep_network(ctx, group, links, q_of, v_x0, v_from: float, v_eq: float, t_n
     interpolations.
     """
     tables = ctx.tables
-    vdd = float(ctx.tech.vdd)
     n_type = ctx.stage.polarity == "n"
-    grid = np.linspace(-margin, vdd + margin, 2 * len(tables.v) + 1)
-    memo = ctx.creep_caps
-    cap_at = []
-    for n in group:
-        key = (keys[n], margin, len(grid)) if keys is not None else None
-        f = memo.get(key)
-        if f is None:
-            f = uniform_lookup(grid, np.maximum(np.abs(np.gradient(q_of(n, grid), grid)), 1e-6))
-            if key is not None:
-                memo[key] = f
-        cap_at.append(f)
+    cap_at = node_capacitances(ctx, group, q_of, margin, keys)
     currents = [tables.pass_current(name) for name, _, _ in links]
     index = {n: k for k, n in enumerate(group)}
     ends = [(index[a], index[b]) for _, a, b in links]

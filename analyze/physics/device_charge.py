@@ -15,9 +15,12 @@ with, but counts each device's charge as the models give it
 - the clock edge: the precharge device's gate goes on from where it turned
   off (VDD − |VTp|) to VDD, coupling through its overlap;
 - the receivers' input charge over the whole input swing with the output
-  held where it was before evaluation (not a flat cox·W·L; the dynamic
-  node's lowest point comes before the output swings back through the
-  gate–drain capacitance), and the switching point from the same models;
+  held where it was before evaluation (not a flat cox·W·L), and the
+  switching point from the same models; where the node falls far enough
+  for a receiver's output to move, the window is solved as a transient
+  with the outputs free (:mod:`analyze.physics.transient`): their
+  gate–drain charge pushes the node back while the charge is still
+  spreading, and the node's lowest point comes with the output part-way;
 - junction bottom and field sidewall by the depletion formula of
   :mod:`analyze.physics.charge` (fitted); the gate-edge sidewall of the
   devices measured here is in their tables.
@@ -47,6 +50,8 @@ from scipy.optimize import brentq
 
 from analyze.physics.charge import node_charge
 from analyze.physics.creep import creep_network
+from analyze.physics.lookup import uniform_lookup
+from analyze.physics.transient import OutputNode, receiver_transient
 from analyze.physics.threshold import pass_limit
 from extract.circuit import JunctionGeometry, Net
 
@@ -190,6 +195,10 @@ class ChargeContext:
         The creep's lookups (:func:`analyze.physics.creep.creep_network`),
         filled as met: each capacitance curve C_n(V) on its grid, per node,
         its devices' gate levels after the edge and the grid's margin.
+    outputs : list of OutputNode
+        The outputs of the receivers on the dynamic node, for the
+        transient (:mod:`analyze.physics.transient`); empty when a receiver
+        has no response tables.
     """
 
     circuit: object
@@ -202,6 +211,7 @@ class ChargeContext:
     rests: dict
     tables_increasing: bool | None = None
     creep_caps: dict = field(default_factory=dict, repr=False)
+    outputs: list = field(default_factory=list)
 
     def rest(self, net: str):
         if net not in self.rests:
@@ -234,9 +244,39 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
     # the lowest point of the dynamic node comes before the receiver's
     # output moves: its input charge with the output held where it was
     held = "lo" if stage.polarity == "n" else "hi"
-    receivers = [tables.receiver(r.nmos, held) for r in stage.receivers
-                 if circuit.device(r.nmos).gate == stage.dynamic_node]
-    return ChargeContext(circuit, stage, tech, tables, devices, clocked, receivers, {})
+    on_x = [r for r in stage.receivers if circuit.device(r.nmos).gate == stage.dynamic_node]
+    receivers = [tables.receiver(r.nmos, held) for r in on_x]
+    ctx = ChargeContext(circuit, stage, tech, tables, devices, clocked, receivers, {})
+    responses = [tables.response(r.nmos) for r in on_x]
+    if on_x and all(r is not None for r in responses):
+        vdd = float(tech.vdd)
+        by_net = {}
+        for r, resp in zip(on_x, responses):
+            by_net.setdefault(r.output, []).append(resp)
+        for net, resps in by_net.items():
+            rest = ctx.rest(net)
+            # as far past the rails as the junction formula holds (settle's bracket)
+            margin = 0.9 * min([float(p) for p in rest.pb] or [1.0])
+            grid = np.linspace(-margin, vdd + margin, 401)
+            cap = np.maximum(np.gradient(np.asarray(rest.charge(grid), dtype=float), grid), 1e-6)
+            ctx.outputs.append(OutputNode(net, uniform_lookup(grid, cap), resps, 0.0 if held == "lo" else vdd))
+    return ctx
+
+
+def _responds(ctx: ChargeContext, v: float) -> bool:
+    """Whether a receiver's output leaves its held level by more than 1 mV
+    with the dynamic node at ``v``: its static current 1 mV away from the
+    level still drives it away (the current falls monotonically as the
+    output rises)."""
+    vdd = float(ctx.tech.vdd)
+    n_type = ctx.stage.polarity == "n"
+    x = min(max(float(v), 0.0), vdd)
+    for o in ctx.outputs:
+        probe = o.held + (1e-3 if n_type else -1e-3)
+        i = sum(r.current(x, probe) for r in o.responses)
+        if (i > 0.0 if n_type else i < 0.0):
+            return True
+    return False
 
 
 def final_voltage_with_devices(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict,
@@ -370,14 +410,44 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
     pbs = [float(x) for n in group for x in rests[n].pb] or [1.0]
     margin = 0.9 * min(pbs)
     v_eq = brentq(f_equal, -margin, vdd + margin, xtol=1e-7)
-    internal = [n for n in group if n != stage.dynamic_node]
+    x = stage.dynamic_node
+    keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}
+
+    def moving(v_held):
+        """``v_held``, or where a receiver's output moving leaves the node's
+        extreme: the transient of the window (never past V_eq)."""
+        if not ctx.outputs or not _responds(ctx, v_held):
+            return v_held
+        q0 = {n: q_node(n, start[n], 0) for n in group}
+        if tables.clock_v is not None:
+            q0[x] = q_node(x, tables.clock_v, 0)
+        v0 = {}
+        for n in group:
+            for lo, hi in ((-margin, vdd + margin), (-vdd, 2.0 * vdd)):
+                try:
+                    v0[n] = brentq(lambda v: q_node(n, v, 1) - q0[n], lo, hi, xtol=1e-7)
+                    break
+                except ValueError:
+                    continue
+            else:
+                return v_held  # no voltage after the edge holds its charge: keep the held value
+        conducting = [ln for ln in links if ln[0] in tables.currents]
+        ext = receiver_transient(ctx, group, conducting, q_grid, v0, ctx.outputs, tech.evaluation_ns, margin,
+                                 keys).v
+        return max(ext, v_eq) if n_type else min(ext, v_eq)
+
+    def known(v_held):
+        if ctx.outputs and _responds(ctx, v_held):
+            return Settling(v_eq, lambda: moving(v_held))
+        return Settling(v_held)
+
+    internal = [n for n in group if n != x]
     if not internal:
-        return Settling(v_eq)
+        return known(v_eq)
     v_lim = pass_limit(tech.mos["nmos" if n_type else "pmos"], vdd)
     v_lim = v_lim if n_type else vdd - v_lim
     if (n_type and v_eq <= v_lim) or (not n_type and v_eq >= v_lim):
-        return Settling(v_eq)
-    x = stage.dynamic_node
+        return known(v_eq)
 
     def v_x(v_int):
         rest = total - sum(q_node(n, v_int, 1) for n in internal)
@@ -408,7 +478,7 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
         return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
 
     if not links:
-        return Settling(x_final(v_end))
+        return known(x_final(v_end))
     # the fast phase up to a few hundred mV short of the pass limit takes
     # no time worth counting; the creep is solved from there
     v_from = v_lim - 0.3 if n_type else v_lim + 0.3
@@ -416,10 +486,10 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
         v_from = max(v_from, v_int0) if n_type else min(v_from, v_int0)
 
     def finish():
-        # a node's curve depends on the context and its devices' levels after the edge only
-        keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}
-        return x_final(creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq, tech.evaluation_ns,
-                                     margin, keys))
+        # a node's curve depends on the context and its devices' levels after
+        # the edge only (keys)
+        return moving(x_final(creep_network(ctx, group, links, q_grid, v_x_near, v_from, v_eq,
+                                            tech.evaluation_ns, margin, keys)))
 
     # the creep ends each internal node in [v_from, v_eq] (p-type: [v_eq, v_from])
     proven = (v_from <= v_eq if n_type else v_eq <= v_from) and ctx.increasing(group)

@@ -62,6 +62,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from analyze.physics.lookup import cell_finder, interp_point, interp_rows
+from analyze.physics.receiver_tables import OUTPUT_STEPS, ReceiverResponse, measure_responses, output_levels
 from extract.tech import Tech
 
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
@@ -104,6 +105,11 @@ class StageTables:
         The dynamic node's voltage at the end of the evaluation window when
         nothing shares it: where the clock edge alone (coupling and the
         precharge devices' channel charge) leaves it.
+    responses : dict of str to (ndarray, ndarray)
+        Receiver nmos name -> its input charge (fC) and output current (µA)
+        over ``v`` × ``out_levels`` (:mod:`analyze.physics.receiver_tables`).
+    out_levels : ndarray or None
+        The output voltages of ``responses``, V.
     """
 
     v: np.ndarray
@@ -114,6 +120,8 @@ class StageTables:
     currents: dict = field(default_factory=dict)
     v_ds: np.ndarray = field(default_factory=lambda: np.asarray(VDS_GRID))
     clock_v: float | None = None
+    responses: dict = field(default_factory=dict)
+    out_levels: np.ndarray | None = None
     _made: dict = field(default_factory=dict, repr=False, compare=False)
 
     def current(self, name: str):
@@ -237,6 +245,19 @@ class StageTables:
         self._made[("pass", name)] = (self.currents[name], i)
         return i
 
+    def response(self, nmos: str) -> ReceiverResponse | None:
+        """The response lookups of the receiver whose nmos is ``nmos``
+        (None without its tables); made once per table."""
+        table = self.responses.get(nmos)
+        if table is None:
+            return None
+        made = self._made.get(("response", nmos))
+        if made is not None and made[0] is table:
+            return made[1]
+        out = ReceiverResponse(self.v, self.out_levels, table[0], table[1])
+        self._made[("response", nmos)] = (table, out)
+        return out
+
     def nondecreasing(self) -> bool:
         """Whether every charge table (terminals, receivers, held receivers)
         is nondecreasing over ``v``; worked out once while the tables stay
@@ -320,7 +341,8 @@ def _digest(path: str) -> bytes:
 def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
     h.update(_digest(path))
-    h.update(json.dumps(["ramp-integral-5", str(corner), vdd, GRID_STEPS, items], sort_keys=True).encode())
+    h.update(json.dumps(["ramp-integral-7", str(corner), vdd, GRID_STEPS, OUTPUT_STEPS, items],
+                        sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 
@@ -443,6 +465,9 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
             for held in ("lo", "hi"):
                 out.held[(it[1], held)] = _frozen(data["held"][f"{held}{k}"])
             out.thresholds[it[1]] = float(data["vm"][k])
+            out.responses[it[1]] = (_frozen(data["response_q"][str(k)]), _frozen(data["response_i"][str(k)]))
+    if out.responses:
+        out.out_levels = _frozen(output_levels(vdd))
     _keep(cache, stamp, out)
     return out
 
@@ -464,11 +489,17 @@ def _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, 
             distinct[u] = it
     made = _measure(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
     made_i = _measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+    receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
+    made_r = measure_responses([distinct[u] for u in receivers], names, pruned, vdd, corner, transistor_line, deck,
+                               run_deck, GRID_STEPS)
+    at = {u: m for m, u in enumerate(receivers)}
     held = {f"{h}{k}": made["held"][f"{h}{u}"] for k, u in enumerate(which) for h in ("lo", "hi")
             if f"{h}{u}" in made["held"]}
     return {"q": [made["q"][u] for u in which], "vm": [made["vm"][u] for u in which], "held": held,
             "calibration": made["calibration"],
-            "i": {str(k): made_i[str(u)] for k, u in enumerate(which) if str(u) in made_i}}
+            "i": {str(k): made_i[str(u)] for k, u in enumerate(which) if str(u) in made_i},
+            "response_q": {str(k): made_r["q"][at[u]] for k, u in enumerate(which) if u in at},
+            "response_i": {str(k): made_r["i"][at[u]] for k, u in enumerate(which) if u in at}}
 
 
 def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:

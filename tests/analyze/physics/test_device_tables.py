@@ -72,9 +72,9 @@ def test_tables_asked_again_are_the_same_and_a_changed_table_file_is_read(tmp_pa
     _, tech, circuit, stage = _setup(tmp_path, monkeypatch)
     runs = _counted_runs(monkeypatch)
     first = prepare_stage(circuit, stage, tech).tables
-    assert len(runs) == 3  # charges, currents, clock edge
+    assert len(runs) == 4  # charges, currents, receiver response, clock edge
     again = prepare_stage(circuit, stage, tech).tables
-    assert again is first and len(runs) == 3  # nothing measured or read again
+    assert again is first and len(runs) == 4  # nothing measured or read again
     (path,) = glob.glob(str(tmp_path / "cache" / "tables" / "*.json"))
     # another process rewrites the table file: every switching point 0.1 V up
     data = json.loads(open(path).read())
@@ -83,12 +83,12 @@ def test_tables_asked_again_are_the_same_and_a_changed_table_file_is_read(tmp_pa
         json.dump(data, fh)
     _bump(path)
     changed = prepare_stage(circuit, stage, tech).tables
-    assert changed is not first and len(runs) == 3
+    assert changed is not first and len(runs) == 4
     assert changed.thresholds == {k: v + 0.1 for k, v in first.thresholds.items()}
     # the file removed: measured again, the numbers ngspice gave the first time
     os.unlink(path)
     remeasured = prepare_stage(circuit, stage, tech).tables
-    assert len(runs) == 6 and remeasured.thresholds == first.thresholds
+    assert len(runs) == 8 and remeasured.thresholds == first.thresholds
 
 
 def test_a_changed_model_library_is_measured_again(tmp_path, monkeypatch):
@@ -96,14 +96,14 @@ def test_a_changed_model_library_is_measured_again(tmp_path, monkeypatch):
     lib, tech, circuit, stage = _setup(tmp_path, monkeypatch)
     runs = _counted_runs(monkeypatch)
     first = prepare_stage(circuit, stage, tech).tables
-    assert prepare_stage(circuit, stage, tech).tables is first and len(runs) == 3
+    assert prepare_stage(circuit, stage, tech).tables is first and len(runs) == 4
     # a higher nmos threshold in the library, written in place: the pruned
     # model file changes, so do the tables' key and the receiver's switching
     # point (a stronger-threshold nmos pulls down later: it rises)
     lib.write_text(_LIB.format(vto=0.6))
     _bump(lib)
     changed = prepare_stage(circuit, stage, tech).tables
-    assert changed is not first and len(runs) == 6
+    assert changed is not first and len(runs) == 8
     (rx,) = first.thresholds
     assert changed.thresholds[rx] > first.thresholds[rx] + 0.01
     assert len(glob.glob(str(tmp_path / "cache" / "tables" / "*.json"))) == 2

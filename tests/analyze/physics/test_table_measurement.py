@@ -32,8 +32,13 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
         seen["i"] = [tuple(it) for it in items]
         return {str(k): [[10.0 * k]] for k, it in enumerate(items) if it[0] == "i"}
 
+    def fake_responses(items, *_args):
+        seen["r"] = [tuple(it) for it in items]
+        return {"q": [[[100.0 + k]] for k in range(len(items))], "i": [[[200.0 + k]] for k in range(len(items))]}
+
     monkeypatch.setattr(dt, "_measure", fake_measure)
     monkeypatch.setattr(dt, "_measure_currents", fake_currents)
+    monkeypatch.setattr(dt, "measure_responses", fake_responses)
     items = [["t", "M1", "nmos", 0.65, 0.15, 0.0],
              ["t", "M2", "nmos", 0.65, 0.15, 0.0],     # = item 0 but for the name
              ["t", "M2", "nmos", 0.65, 0.15, 1.8],
@@ -49,6 +54,10 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
     assert out["vm"] == [0.5, 0.5, 1.5, 2.5, 2.5, 3.5, 4.5, 4.5]
     assert out["i"] == {"3": [[20.0]], "4": [[20.0]], "5": [[30.0]]}
     assert out["held"] == {"lo6": [4.1], "hi6": [4.2], "lo7": [4.1], "hi7": [4.2]}
+    # the receivers' response surfaces: one distinct inverter, given to both
+    assert seen["r"] == [tuple(items[6])]
+    assert out["response_q"] == {"6": [[100.0]], "7": [[100.0]]}
+    assert out["response_i"] == {"6": [[200.0]], "7": [[200.0]]}
 
 
 @pytest.mark.ngspice
@@ -77,6 +86,10 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
         # the measurement before devices were shared: every item in the decks
         made = dt._measure(items, *rest)
         made["i"] = dt._measure_currents(items, *rest)
+        rx = [k for k, it in enumerate(items) if it[0] == "r"]
+        resp = dt.measure_responses([items[k] for k in rx], *rest, dt.GRID_STEPS)
+        made["response_q"] = {str(k): resp["q"][m] for m, k in enumerate(rx)}
+        made["response_i"] = {str(k): resp["i"][m] for m, k in enumerate(rx)}
         return made
 
     monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache2"))
@@ -91,3 +104,5 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
     for name in shared.receivers:
         assert np.allclose(shared.receivers[name], alone.receivers[name], rtol=1e-6, atol=1e-9)
         assert shared.thresholds[name] == pytest.approx(alone.thresholds[name], abs=1e-6)
+        for a, b in zip(shared.responses[name], alone.responses[name]):
+            assert np.allclose(a, b, rtol=1e-6, atol=1e-9)

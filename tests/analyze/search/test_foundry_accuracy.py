@@ -8,14 +8,14 @@ keeper is tied off in the compared simulation, as the analysis leaves its
 help out.  The tech files are characterised from the same models
 (``dynshare characterize``).
 
-The issue asks for |error| ≤ 20 mV and at most 10 mV optimistic.  On these
-stages, corners and arrival cases the analysis is never optimistic and at
-most 20.3 mV pessimistic (tests/bench/bench_accuracy.py; the failing NAND3
-with 3 fF on its internal nodes is the largest, −16.4 … −20.3 mV: the analysis
-holds the receiver's output where it was, the simulation lets it start to
-swing back before X's lowest point).  Checked here with 5 mV of room on
-the pessimistic side for a machine that computes differently: −25 … +10 mV,
-and every verdict agrees with the simulation's.
+The issue asks for |error| ≤ 20 mV and at most 10 mV optimistic.  On the
+ten stages of tests/bench/bench_accuracy.py at tt, ss and ff (57 stage,
+corner and arrival-case results) the analysis is −10.4 … +4.0 mV from the
+simulation (the most pessimistic the p-type NOR2 at ss, the most optimistic
+the failing NAND3 with 3 fF on its internal nodes at ff, where the
+receiver's output swings within the window: analyze.physics.transient).
+Checked here with the issue's own limits, −20 … +10 mV, and every verdict
+agrees with the simulation's.
 """
 
 from __future__ import annotations
@@ -61,7 +61,7 @@ def test_analysis_meets_simulation(techs, corner, name, tmp_path):
                                             count=1) if s.case == case]
         v_sim = sim.v_min_without_keeper if sim.v_min_without_keeper is not None else sim.v_min
         err = sign * (fo.worst.v_final - v_sim)  # positive: the analysis is optimistic
-        assert -0.025 <= err <= 0.010, (case, fo.worst.inputs, fo.worst.v_final, v_sim)
+        assert -0.020 <= err <= 0.010, (case, fo.worst.inputs, fo.worst.v_final, v_sim)
         assert fo.threshold_v == pytest.approx(sim.threshold_v, abs=2e-3)
         verdict = sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard
         assert verdict == (sign * (v_sim - sim.threshold_v) >= tech.guard)

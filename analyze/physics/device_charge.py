@@ -241,8 +241,8 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
     """Prepare :class:`ChargeContext` (O(devices of the circuit), once per stage)."""
     devices = table_devices(circuit, stage)
     clocked = {name for name, role in clock_setup(circuit, stage, tech, devices)["devices"] if role == "clocked"}
-    # the lowest point of the dynamic node comes before the receiver's
-    # output moves: its input charge with the output held where it was
+    # the receivers' input charge with the output held where it was (the
+    # transient of the window adds the output's swing where it moves)
     held = "lo" if stage.polarity == "n" else "hi"
     on_x = [r for r in stage.receivers if circuit.device(r.nmos).gate == stage.dynamic_node]
     receivers = [tables.receiver(r.nmos, held) for r in on_x]

@@ -21,10 +21,16 @@ one stage, at the corner of the tech file's ``[models]``, with ngspice:
 ``receiver(rx)``
     The charge on a receiving inverter's input (both gates) over its input
     voltage, its output following (so the output's swing past the switching
-    point is in it) or held where it was before evaluation (the dynamic
-    node's lowest point comes before the output moves: its swing couples
-    back through the gate–drain capacitance afterwards), and that switching
-    point from a DC sweep: the input where the output equals it.
+    point is in it) or held where it was before evaluation (the charge
+    conservation's own curve; where the output moves within the window,
+    :mod:`analyze.physics.transient` adds what its swing couples back),
+    and that switching point from a DC sweep: the input where the output
+    equals it.
+``response(rx)``
+    A receiver's input charge and static output current over its input ×
+    its output voltage (:mod:`analyze.physics.receiver_tables`): what the
+    transient of the window needs when the output moves
+    (:mod:`analyze.physics.transient`).
 ``current(device)``
     An evaluation device's channel current with its gate on, against its
     near terminal and its drain–source voltage (a log-spaced grid from
@@ -38,7 +44,9 @@ capacitor on a ramp of its own calibrates sign and integration).
 Notes
 -----
 A few ngspice runs per stage and corner (the charges, the currents, the
-clock edge), each with its models loaded once: every distinct device and gate level
+receivers' response surfaces — :mod:`analyze.physics.receiver_tables` —
+and the clock edge), each with its models
+loaded once: every distinct device and gate level
 gets its own pair of sources and every receiver its own inverter, on one
 transient (gate ramp 0 -> level in 1 ns, then source/drain or input ramp
 0 -> VDD in 2 ns), plus one DC sweep for the switching points and one
@@ -487,9 +495,11 @@ def _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, 
     for it, u in zip(items, which):
         if distinct[u] is None:
             distinct[u] = it
+    receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
     made = _measure(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
     made_i = _measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
-    receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
+    # one after another: ngspice's BSIM4 evaluation is itself multi-threaded
+    # (OpenMP), and two runs side by side were several times slower (measured)
     made_r = measure_responses([distinct[u] for u in receivers], names, pruned, vdd, corner, transistor_line, deck,
                                run_deck, GRID_STEPS)
     at = {u: m for m, u in enumerate(receivers)}

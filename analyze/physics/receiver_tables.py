@@ -27,8 +27,9 @@ Notes
 -----
 One ngspice run per corner for all the receivers of a stage (cached with
 the other tables): per output level one transient (input ramp 0 → VDD over
-0.36 ns; the models are quasi-static, so the ramp's speed does not
-matter: checked against ngspice's AC analysis in the tests) and one DC sweep, the output held by a source changed with
+0.36 ns; the models' charges are quasi-static, so the ramp's speed does
+not matter — the input capacitance agrees with ngspice's AC analysis in
+the tests) and one DC sweep, the output held by a source changed with
 ``alter``.  A 1 fF capacitor on a ramp of its own calibrates sign and
 integration, as for the charge tables.
 """

@@ -63,6 +63,12 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
         Increasing times from 0 to ``t_end``: the states at each are
         returned (the solver's own interpolation between its steps).
 
+    Raises
+    ------
+    ArithmeticError
+        With ``times``, when both solvers stop short of ``t_end`` (without
+        ``times`` the state where scipy's BDF stopped is returned).
+
     Returns
     -------
     ndarray
@@ -106,10 +112,10 @@ def integrate_stiff(rates, y0, t_end: float, rtol: float = 1e-4, atol: float = 1
                     t_eval=None if times is None else at)
     if times is None:
         return np.array(sol.y[:, -1], dtype=float)
-    out = np.array(sol.y.T, dtype=float)
-    if len(out) < len(at):  # stopped early: the last state it reached for the rest
-        out = np.vstack([out, np.tile(out[-1] if len(out) else y0, (len(at) - len(out), 1))])
-    return out
+    if sol.status != 0 or sol.y.shape[1] < len(at):
+        # a path cut short would hide where it went: the caller decides
+        raise ArithmeticError(f"the stiff solve stopped at t = {sol.t[-1] if len(sol.t) else 0.0:g}: {sol.message}")
+    return np.array(sol.y.T, dtype=float)
 
 
 def node_capacitances(ctx, group, q_of, margin: float, keys=None) -> list:

@@ -57,7 +57,7 @@ from extract.circuit import JunctionGeometry, Net
 
 __all__ = ["GateLevels", "ChargeContext", "charge_context", "gate_levels", "final_voltage_with_devices",
            "Settling", "settle", "BOUND_TOLERANCE",
-           "table_devices", "clock_setup", "equalised_bound"]
+           "table_devices", "clock_setup"]
 
 
 @dataclass(frozen=True)
@@ -413,32 +413,48 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
     x = stage.dynamic_node
     keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}
 
+    given = list(links)  # the conducting devices as the caller gave them
+
     def moving(v_held):
         """``v_held``, or where a receiver's output moving leaves the node's
-        extreme: the transient of the window (never past V_eq)."""
+        extreme: the transient of the window, never below ``v_held``
+        (n-type; p-type: never above) — with the same sharing, the
+        output's swing only adds charge to the dynamic node."""
         if not ctx.outputs or not _responds(ctx, v_held):
             return v_held
+        conducting = [ln for ln in given if ln[0] in tables.currents]
+        reach, todo = {x}, [x]
+        while todo:
+            n = todo.pop()
+            for _, a, b in conducting:
+                for p, q in ((a, b), (b, a)):
+                    if p == n and q not in reach:
+                        reach.add(q)
+                        todo.append(q)
+        if not members <= reach:
+            return v_held  # nodes the transient could not charge (no current table, no link): keep the held value
         q0 = {n: q_node(n, start[n], 0) for n in group}
         if tables.clock_v is not None:
             q0[x] = q_node(x, tables.clock_v, 0)
         v0 = {}
         for n in group:
-            for lo, hi in ((-margin, vdd + margin), (-vdd, 2.0 * vdd)):
-                try:
-                    v0[n] = brentq(lambda v: q_node(n, v, 1) - q0[n], lo, hi, xtol=1e-7)
-                    break
-                except ValueError:
-                    continue
-            else:
+            try:
+                v0[n] = brentq(lambda v: q_node(n, v, 1) - q0[n], -margin, vdd + margin, xtol=1e-7)
+            except ValueError:
                 return v_held  # no voltage after the edge holds its charge: keep the held value
-        conducting = [ln for ln in links if ln[0] in tables.currents]
-        ext = receiver_transient(ctx, group, conducting, q_grid, v0, ctx.outputs, tech.evaluation_ns, margin,
-                                 keys).v
-        return max(ext, v_eq) if n_type else min(ext, v_eq)
+        try:
+            ext = receiver_transient(ctx, group, conducting, q_grid, v0, ctx.outputs, tech.evaluation_ns, margin,
+                                     keys).v
+        except ArithmeticError:
+            return v_held  # the integration failed: keep the held value
+        if ext != ext:
+            return v_held
+        return max(ext, v_held) if n_type else min(ext, v_held)
 
     def known(v_held):
         if ctx.outputs and _responds(ctx, v_held):
-            return Settling(v_eq, lambda: moving(v_held))
+            # the transient never ends past the held value: it is the bound
+            return Settling(v_held, lambda: moving(v_held))
         return Settling(v_held)
 
     internal = [n for n in group if n != x]
@@ -494,134 +510,3 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
     # the creep ends each internal node in [v_from, v_eq] (p-type: [v_eq, v_from])
     proven = (v_from <= v_eq if n_type else v_eq <= v_from) and ctx.increasing(group)
     return Settling(v_eq if proven else None, finish)
-
-
-def equalised_bound(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=frozenset()) -> float | None:
-    """A bound on the dynamic node's final voltage over every pattern and
-    arrival case: never above the true lowest value (n-type; p-type: never
-    below the highest).
-
-    Parameters
-    ----------
-    ctx : ChargeContext
-    nodes : iterable of str
-        Every internal node some pattern can join to the dynamic node.
-    inputs : iterable of str
-        The stage's inputs.
-    late : iterable of str
-        Inputs that are at their off level before the edge in every
-        arrival case (the top inputs, those low in precharge).
-    precharged : iterable of str
-        Internal nodes that start precharged (predischarged).
-
-    Returns
-    -------
-    float or None
-        None when the bound's equation has no root in range.
-
-    Notes
-    -----
-    The solver's V(X) is never below the equalised voltage of its group
-    (past the pass limit the internal nodes stop short and X keeps more),
-    and the equalised voltage is the root of F(V) = Σ_n [Q_n,after(V) −
-    Q_n,before(V_n,0)], increasing in V.  An internal node of an n-type
-    stage ends no higher than max(V_lim, V_cap), V_cap where it would be
-    after ``evaluation_ns`` if every device on it carried its largest
-    current (far terminal at the dynamic node's highest voltage) into its
-    smallest capacitance (:func:`_creep_caps`), so its term is taken there.  Replacing every term by its
-    largest value over what a pattern and case can choose (a node joined
-    or not: max(0, ·); each device's gate levels before and after the
-    edge: off/off, on/on or off/on, and only off for a device to the rail
-    or the footer node, which on would discharge the group; internal nodes
-    discharged, the lowest start) gives a function never below F, whose root is never above
-    V(X) (p-type: the mirror, smallest terms).  One root search: O(devices
-    × log(1/tolerance)).
-    """
-    stage, tech, tables = ctx.stage, ctx.tech, ctx.tables
-    vdd = float(tech.vdd)
-    n_type = stage.polarity == "n"
-    pick = max if n_type else min
-    x = stage.dynamic_node
-    inputs = set(inputs)
-    off, on = (0.0, vdd) if n_type else (vdd, 0.0)
-    fixed = gate_levels(ctx.circuit, stage, tech, {}, set(), ctx.devices)
-    if tables.clock_v is not None:
-        fixed.before.update({name: fixed.after[name] for name in ctx.clocked})
-    start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
-    pre = set(stage.secondary_precharge) | set(precharged)
-    # the footer node is held at the rail during evaluation: never shared
-    members = [x, *[n for n in nodes if n != x and n != stage.footer_node]]
-    starts = {n: (start_x if n in pre or n == x else start_int) for n in members}
-    x_start = tables.clock_v if tables.clock_v is not None else start_x
-    terms = {n: [] for n in members}
-    grounded = {stage.rail, stage.footer_node} - {None}
-    for d in ctx.devices:
-        if d.gate in inputs and d.name not in stage.keepers and grounded & {d.drain, d.source}:
-            # on, it ties its node to the rail: that node is never shared then
-            options = [(off, off)]
-        elif d.gate in inputs and d.name not in stage.keepers:
-            options = [(off, off), (off, on)] if d.gate in late else [(off, off), (on, on), (off, on)]
-        else:
-            options = [(fixed.before[d.name], fixed.after[d.name])]
-        for t in (d.drain, d.source):
-            if t in terms:
-                terms[t].append([(tables.terminal(d.name, b), tables.terminal(d.name, a)) for b, a in options])
-
-    caps = (_creep_caps(ctx, [n for n in members if n != x and n not in pre], x_start, terms)
-            if n_type else {})
-
-    def contribution(n, v):
-        s0 = x_start if n == x else starts[n]
-        if n in caps:
-            v = min(v, caps[n])
-        c = float(ctx.rest(n).charge(float(v))) - float(ctx.rest(n).charge(float(s0)))
-        for opts in terms[n]:
-            c += pick(0.5 * (float(a(v)) - float(b(s0))) for b, a in opts)
-        if n == x:
-            c += sum(float(f(v)) - float(f(s0)) for f in ctx.receivers)
-            return c
-        return pick(0.0, c)
-
-    def f(v):
-        return sum(contribution(n, v) for n in members)
-
-    pbs = [float(p) for n in members for p in ctx.rest(n).pb] or [1.0]
-    margin = 0.9 * min(pbs)
-    lo, hi = -margin, vdd + margin
-    if f(lo) * f(hi) > 0:
-        return None
-    v = brentq(f, lo, hi, xtol=1e-7)
-    return min(v, start_x) if n_type else max(v, start_x)
-
-
-def _creep_caps(ctx: ChargeContext, nodes, v_far: float, terms: dict) -> dict:
-    """For each internal node of an n-type stage, a voltage it cannot pass
-    by the end of the window in :func:`final_voltage_with_devices`:
-    max(V_lim, V_cap), t(V_cap) = ∫ C_min(V) / I_max(V) dV from the creep's
-    start (V_lim − 0.3 V) = ``evaluation_ns``; C_min is the node's
-    capacitance with each device's part at its smallest over the gate
-    levels a pattern can give it (``terms``: node -> per device, the
-    (before, after) charge functions of each option), I_max the sum of
-    the currents of every evaluation device on it with its far terminal at
-    ``v_far``.  fC / µA = 1 ns."""
-    stage, tech, tables = ctx.stage, ctx.tech, ctx.tables
-    vdd = float(tech.vdd)
-    v_lim = pass_limit(tech.mos["nmos"], vdd)
-    grid = np.linspace(v_lim - 0.3, vdd, 120)
-    out = {}
-    for n in nodes:
-        funcs = [tables.current(d.name) for d in ctx.devices
-                 if d.name in stage.evaluation and n in (d.drain, d.source) and d.name in tables.currents]
-        if not funcs:
-            out[n] = v_lim
-            continue
-        c = np.asarray(ctx.rest(n).capacitance(grid), dtype=float)
-        for opts in terms.get(n, ()):
-            c = c + np.min([np.maximum(0.5 * np.gradient(np.asarray(a(grid), dtype=float), grid), 0.0)
-                            for _, a in opts], axis=0)
-        i = np.array([sum(f(v, max(v_far, v)) for f in funcs) for v in grid])
-        dt = 0.5 * (c[1:] / np.maximum(i[1:], 1e-15) + c[:-1] / np.maximum(i[:-1], 1e-15)) * np.diff(grid)
-        t = np.concatenate([[0.0], np.cumsum(dt)])
-        v_cap = vdd if t[-1] <= tech.evaluation_ns else float(np.interp(tech.evaluation_ns, t, grid))
-        out[n] = max(v_lim, v_cap)
-    return out

@@ -70,7 +70,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from analyze.physics.lookup import cell_finder, interp_point, interp_rows
-from analyze.physics.receiver_tables import OUTPUT_STEPS, ReceiverResponse, measure_responses, output_levels
+from analyze.physics.receiver_tables import (RAMP_NS, RAMP_START_NS, ReceiverResponse, measure_responses,
+                                              output_levels)
 from extract.tech import Tech
 
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
@@ -213,7 +214,7 @@ class StageTables:
         The same table and the same interpolation as :meth:`current` (its
         docstring gives the source of the forms), which stays numpy.interp's
         arithmetic bit for bit for the bound of
-        :func:`analyze.physics.device_charge.equalised_bound`; only the
+        :func:`analyze.physics.bound.equalised_bound`; only the
         arithmetic's order differs (an index from the even grid, ``math.exp``),
         and a change of the forms is a change of both.  O(log rows) per call.
         """
@@ -349,8 +350,10 @@ def _digest(path: str) -> bytes:
 def _key(path: str, corner, vdd: float, items) -> str:
     h = hashlib.sha256()
     h.update(_digest(path))
-    h.update(json.dumps(["ramp-integral-7", str(corner), vdd, GRID_STEPS, OUTPUT_STEPS, items],
-                        sort_keys=True).encode())
+    # everything the stored numbers depend on besides the items: the grids
+    # and the receiver surfaces' output levels and ramps
+    h.update(json.dumps(["ramp-integral-7", str(corner), vdd, GRID_STEPS, output_levels(vdd).tolist(),
+                         RAMP_START_NS, RAMP_NS, items], sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 

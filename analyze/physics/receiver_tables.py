@@ -40,7 +40,7 @@ import numpy as np
 
 from analyze.physics.lookup import bilinear_lookup, bilinear_lookups
 
-__all__ = ["output_levels", "measure_responses", "ReceiverResponse", "OUTPUT_STEPS"]
+__all__ = ["output_levels", "measure_responses", "ReceiverResponse", "OUTPUT_STEPS", "RAMP_START_NS", "RAMP_NS"]
 
 #: Output levels per VDD: VDD / OUTPUT_STEPS apart.
 OUTPUT_STEPS = 20

@@ -263,9 +263,9 @@ def analyze_stage(
 def _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen: str) -> str:
     """What the ranked foundry-model worst case proves: a failing pattern
     found is a witness; a pass is proven by
-    :func:`analyze.physics.device_charge.equalised_bound` when the bound
+    :func:`analyze.physics.bound.equalised_bound` when the bound
     itself clears the threshold plus guard."""
-    from analyze.physics.device_charge import equalised_bound
+    from analyze.physics.bound import equalised_bound
 
     n_type = stage.polarity == "n"
     sign = 1.0 if n_type else -1.0

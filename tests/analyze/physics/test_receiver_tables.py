@@ -98,7 +98,7 @@ def test_surface_at_the_held_levels_is_the_held_table(measured):
     surface's columns at 0 and VDD, the latter up to the constant
     Q_g(0, VDD) that the surface adds (its charges are relative to
     v_in = v_out = 0, the held tables' to v_in = 0)."""
-    from analyze.physics.device_tables import GRID_STEPS, _measure
+    from analyze.physics.device_tables import _measure
     from analyze.physics.receiver_tables import output_levels
 
     tech, pruned, made, resp = measured
@@ -107,7 +107,6 @@ def test_surface_at_the_held_levels_is_the_held_table(measured):
 
     held = _measure([["r", "MN", WN, LN, WP, LP]], {"nmos": N, "pmos": P}, pruned, 1.8, "tt", transistor_line,
                     deck, run_deck)["held"]
-    v = np.linspace(0, 1.8, GRID_STEPS + 1)
     q = np.asarray(made["q"][0])
     levels = list(np.round(output_levels(1.8), 9))
     at0, at_vdd = levels.index(0.0), levels.index(1.8)
@@ -115,4 +114,3 @@ def test_surface_at_the_held_levels_is_the_held_table(measured):
     offset = q[0, at_vdd]
     assert offset < 0  # the output's rise pulls charge off the gate (the gate–drain overlap)
     assert np.max(np.abs(np.asarray(held["hi0"]) + offset - q[:, at_vdd])) < 2e-3
-    assert len(v) == q.shape[0]

@@ -501,8 +501,9 @@ def _measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, 
     receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
     made = _measure(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
     made_i = _measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
-    # one after another: ngspice's BSIM4 evaluation is itself multi-threaded
-    # (OpenMP), and two runs side by side were several times slower (measured)
+    # one after another: run side by side in threads, the three runs took
+    # several times longer on a 2-core machine (measured; Debian's ngspice
+    # is built with OpenMP, and timings there swing widely)
     made_r = measure_responses([distinct[u] for u in receivers], names, pruned, vdd, corner, transistor_line, deck,
                                run_deck, GRID_STEPS)
     at = {u: m for m, u in enumerate(receivers)}

@@ -70,6 +70,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from analyze.physics.lookup import cell_finder, interp_point, interp_rows
+from analyze.physics.ramp_charge import calibration, delivered_charge
 from analyze.physics.receiver_tables import (RAMP_NS, RAMP_START_NS, ReceiverResponse, measure_responses,
                                               output_levels)
 from extract.tech import Tech
@@ -571,14 +572,10 @@ def _measure(items, names, pruned, vdd, corner, transistor_line, deck, run_deck)
                    tables=["charges.txt"] + (["transfer.txt"] if dc_vectors else []))
     table = res.tables["charges.txt"]
     t = table[:, 0]
-    # charge delivered into the circuit by each source: minus the integral
-    # of its branch current (SPICE's current flows from + through the source)
-    q = -np.concatenate([np.zeros((1, table.shape[1] - 1)),
-                         np.cumsum(0.5 * (table[1:, 1:] + table[:-1, 1:]) * np.diff(t)[:, None], axis=0)]) * 1e15
+    q = delivered_charge(table)
     grid = np.linspace(0.0, vdd, GRID_STEPS + 1)
     times = 1e-9 + 2e-9 * grid / vdd
-    calib = np.interp(times, t, q[:, 0])
-    scale = 1.0 / np.polyfit(grid, calib, 1)[0] if np.ptp(calib) > 0 else 1.0  # 1 fF -> 1 fC/V
+    scale = calibration(grid, np.interp(times, t, q[:, 0]))
     out_q, out_vm, out_held = {}, {}, {}
     transfer = res.tables.get("transfer.txt")
     col_dc = 1

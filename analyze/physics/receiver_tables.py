@@ -39,6 +39,7 @@ from __future__ import annotations
 import numpy as np
 
 from analyze.physics.lookup import bilinear_lookup, bilinear_lookups
+from analyze.physics.ramp_charge import calibration, delivered_charge
 
 __all__ = ["output_levels", "measure_responses", "ReceiverResponse", "OUTPUT_STEPS", "RAMP_START_NS", "RAMP_NS"]
 
@@ -138,12 +139,8 @@ def measure_responses(items, names, pruned, vdd: float, corner, transistor_line,
     for j in range(len(levels)):
         table = res.tables[f"rq{j}.txt"]
         t = table[:, 0]
-        # charge delivered by each source: minus the integral of its branch
-        # current (SPICE's current flows from + through the source)
-        q = -np.concatenate([np.zeros((1, table.shape[1] - 1)),
-                             np.cumsum(0.5 * (table[1:, 1:] + table[:-1, 1:]) * np.diff(t)[:, None], axis=0)]) * 1e15
-        calib = np.interp(times, t, q[:, 0])
-        scale = 1.0 / np.polyfit(grid, calib, 1)[0] if np.ptp(calib) > 0 else 1.0  # 1 fF -> 1 fC/V
+        q = delivered_charge(table)
+        scale = calibration(grid, np.interp(times, t, q[:, 0]))
         cur = res.tables[f"ri{j}.txt"]
         for k in range(len(items)):
             q_out[k, :, j] = np.interp(times, t, q[:, 1 + 2 * k]) * scale

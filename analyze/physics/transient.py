@@ -217,7 +217,7 @@ def receiver_transient(ctx, group, links, q_of, v0, outputs, t_ns: float, margin
             cur = sign * f(near, v[g])
             flow[r] += cur
             flow[g] -= cur
-        dv = [flow[m] / cap_at[m](v[m]) for m in range(size)]
+        dv = [0.0] + [flow[m] / cap_at[m](v[m]) for m in range(1, size)]  # dv[0] below
         vx = min(max(v[0], 0.0), vdd)
         cx = cap_at[0](v[0])
         rhs_x = flow[0]

@@ -16,6 +16,7 @@ stack pieces a pattern turns on together (see :func:`equalised_bound`).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from itertools import product
 
 import numpy as np
@@ -24,7 +25,7 @@ from scipy.optimize import brentq
 from analyze.physics.device_charge import ChargeContext, gate_levels
 from analyze.physics.threshold import pass_limit
 
-__all__ = ["equalised_bound", "COMBINATIONS"]
+__all__ = ["equalised_bound", "bound_parts", "BoundParts", "COMBINATIONS"]
 
 #: Largest number of device-state combinations enumerated for one stack
 #: piece; past it the piece's terms are bounded one by one.
@@ -85,10 +86,130 @@ def equalised_bound(ctx: ChargeContext, nodes, inputs, late=frozenset(), prechar
     still a bound.  One root search: O(combinations × devices ×
     log(1/tolerance)).
     """
+    parts = bound_parts(ctx, nodes, inputs, late, precharged)
+    pick = max if parts.n_type else min
+    plans = []
+    for nodes_in, devices in parts.pieces:
+        count = 1
+        for _, states, _ in devices:
+            count *= len(states)
+        if count <= COMBINATIONS:
+            choices = list(product(*[range(len(states)) for _, states, _ in devices]))
+            plans.append(lambda v, devices=devices, choices=choices:
+                         pick(parts.piece_sum(devices, ch, v) for ch in choices))
+        else:
+            plans.append(lambda v, devices=devices, nodes_in=nodes_in: parts.piece_loose(devices, nodes_in, v))
+
+    def f(v):
+        return parts.own_sum(v) + sum(plan(v) for plan in plans)
+
+    lo, hi = parts.bracket
+    if f(lo) * f(hi) > 0:
+        return None
+    v = brentq(f, lo, hi, xtol=1e-7)
+    return min(v, parts.start_x) if parts.n_type else max(v, parts.start_x)
+
+
+@dataclass
+class BoundParts:
+    """The terms of the bound's charge balance, grouped by stack piece
+    (:func:`bound_parts`).
+
+    Attributes
+    ----------
+    n_type : bool
+    x : str
+        The dynamic node.
+    start_x : float
+        The dynamic node's precharge level (V).
+    pieces : list of (list of str, list of (Device, list, list))
+        Per piece, its internal nodes and its devices, each with its
+        (before, after) charge functions per state and whether it conducts
+        in each state.
+    own : list of (Device, list)
+        Devices on the dynamic node and no internal node, with their states.
+    bracket : (float, float)
+        The voltage range of the root search.
+    """
+
+    n_type: bool
+    x: str
+    start_x: float
+    pieces: list
+    own: list
+    bracket: tuple
+    rest: object
+    term: object
+    inside: frozenset
+
+    def joined(self, devices, choice) -> set:
+        """The nodes the devices conducting in ``choice`` join to the
+        dynamic node (the dynamic node included)."""
+        adj = {}
+        for (d, _, conducts), k in zip(devices, choice):
+            if conducts[k]:
+                adj.setdefault(d.drain, []).append(d.source)
+                adj.setdefault(d.source, []).append(d.drain)
+        joined, todo = {self.x}, [self.x]
+        while todo:
+            for m in adj.get(todo.pop(), ()):
+                if m not in joined:
+                    joined.add(m)
+                    todo.append(m)
+        return joined
+
+    def piece_sum(self, devices, choice, v) -> float:
+        """One piece's terms with its devices in the states ``choice``."""
+        joined = self.joined(devices, choice)
+        c = sum(self.rest(n, v) for n in joined if n != self.x and n in self.inside)
+        for (d, states, _), k in zip(devices, choice):
+            for t in (d.drain, d.source):
+                if t in joined:
+                    c += self.term(t, states[k], v)
+        return c
+
+    def piece_loose(self, devices, nodes_in, v) -> float:
+        """The piece's terms each at its largest alone (too many combinations)."""
+        pick = max if self.n_type else min
+        c = 0.0
+        for d, states, _ in devices:
+            for t in (d.drain, d.source):
+                if t == self.x:
+                    c += pick(self.term(self.x, s, v) for s in states)
+        for n in nodes_in:
+            cn = self.rest(n, v)
+            for d, states, _ in devices:
+                for t in (d.drain, d.source):
+                    if t == n:
+                        cn += pick(self.term(n, s, v) for s in states)
+            c += pick(0.0, cn)
+        return c
+
+    def own_sum(self, v, choice=None) -> float:
+        """The dynamic node's own terms: its rest and receivers, and the
+        devices on it alone, each in its state of ``choice`` (a state index
+        per :attr:`own` device) or at its largest (p-type: smallest)."""
+        pick = max if self.n_type else min
+        c = self.rest(self.x, v) + self.receivers(v)
+        for j, (d, states) in enumerate(self.own):
+            for t in (d.drain, d.source):
+                if t == self.x:
+                    c += (pick(self.term(self.x, s, v) for s in states) if choice is None
+                          else self.term(self.x, states[choice[j]], v))
+        return c
+
+    receivers: object = None
+
+
+def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=frozenset()) -> BoundParts:
+    """The terms of :func:`equalised_bound`'s charge balance, by piece
+    (arguments as there).  Each input device's states: off/off, then
+    on/on unless its input is ``late``, then off/on; a device to the rail
+    or the footer node only off/off.  O(devices + internal nodes × creep
+    grid)."""
     stage, tech, tables = ctx.stage, ctx.tech, ctx.tables
     vdd = float(tech.vdd)
     n_type = stage.polarity == "n"
-    pick = max if n_type else min
     x = stage.dynamic_node
     inputs = set(inputs)
     off, on = (0.0, vdd) if n_type else (vdd, 0.0)
@@ -157,70 +278,15 @@ def equalised_bound(ctx: ChargeContext, nodes, inputs, late=frozenset(), prechar
         else:
             own.append((d, states))
 
-    def piece_sum(devices, choice, v):
-        """One piece's terms with its devices in the states ``choice``."""
-        adj = {}
-        for (d, _, conducts), k in zip(devices, choice):
-            if conducts[k]:
-                adj.setdefault(d.drain, []).append(d.source)
-                adj.setdefault(d.source, []).append(d.drain)
-        joined, todo = {x}, [x]
-        while todo:
-            for m in adj.get(todo.pop(), ()):
-                if m not in joined:
-                    joined.add(m)
-                    todo.append(m)
-        c = sum(rest(n, v) for n in joined if n != x and n in inside)
-        for (d, states, _), k in zip(devices, choice):
-            for t in (d.drain, d.source):
-                if t in joined:
-                    c += term(t, states[k], v)
-        return c
-
-    def piece_loose(devices, nodes_in, v):
-        """The piece's terms each at its largest alone (too many combinations)."""
-        c = 0.0
-        for d, states, _ in devices:
-            for t in (d.drain, d.source):
-                if t == x:
-                    c += pick(term(x, s, v) for s in states)
-        for n in nodes_in:
-            cn = rest(n, v)
-            for d, states, _ in devices:
-                for t in (d.drain, d.source):
-                    if t == n:
-                        cn += pick(term(n, s, v) for s in states)
-            c += pick(0.0, cn)
-        return c
-
-    plans = []
-    for key, devices in pieces.items():
-        nodes_in = [n for n in inside if root(n) == key]
-        count = 1
-        for _, states, _ in devices:
-            count *= len(states)
-        if count <= COMBINATIONS:
-            choices = list(product(*[range(len(states)) for _, states, _ in devices]))
-            plans.append(lambda v, devices=devices, choices=choices:
-                         pick(piece_sum(devices, ch, v) for ch in choices))
-        else:
-            plans.append(lambda v, devices=devices, nodes_in=nodes_in: piece_loose(devices, nodes_in, v))
-
-    def f(v):
-        c = rest(x, v) + sum(float(g(v)) - float(g(x_start)) for g in ctx.receivers)
-        for d, states in own:
-            for t in (d.drain, d.source):
-                if t == x:
-                    c += pick(term(x, s, v) for s in states)
-        return c + sum(plan(v) for plan in plans)
-
     pbs = [float(p) for n in members for p in ctx.rest(n).pb] or [1.0]
     margin = 0.9 * min(pbs)
-    lo, hi = -margin, vdd + margin
-    if f(lo) * f(hi) > 0:
-        return None
-    v = brentq(f, lo, hi, xtol=1e-7)
-    return min(v, start_x) if n_type else max(v, start_x)
+
+    def receivers(v):
+        return sum(float(g(v)) - float(g(x_start)) for g in ctx.receivers)
+
+    return BoundParts(n_type, x, start_x,
+                      [([n for n in inside if root(n) == key], devices) for key, devices in pieces.items()],
+                      own, (-margin, vdd + margin), rest, term, frozenset(inside), receivers)
 
 
 def _creep_caps(ctx: ChargeContext, nodes, v_far: float, terms: dict) -> dict:

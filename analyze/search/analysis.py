@@ -226,11 +226,21 @@ def analyze_stage(
             physics_note = f"{MODELS_UNUSABLE} ({exc.line()}); level-1 numbers used"
         else:
             found_f = solve_candidates(prep, circuit, stage, tech, constraints, candidates)
+            if chosen is not None and found_f is not None:
+                from analyze.search.branch_bound import exact_worst
+
+                exact = exact_worst(prep, circuit, stage, tech, constraints, model, choices, found_f)
+                if exact is not None:
+                    found_f, chosen = exact.worst, None
+                    candidates = candidates + exact.solved
+                    physics_note = (f"foundry-model worst case exact over all {counted} counted patterns and "
+                                    f"every arrival case: the lumped model's {len(candidates) - len(exact.solved)} "
+                                    f"worst patterns, then a branch and bound ({exact.nodes} partial patterns "
+                                    f"bounded, {len(exact.solved)} left to solve)")
             if found_f is not None:
                 wc = replace(found_f, v_final_linear=wc.v_final_linear if wc else found_f.v_final_linear)
             threshold = prep.threshold_v
             physics = f"foundry models, corner {prep.corner or '(library)'}"
-            physics_note = chosen
             if chosen is not None:
                 physics_note = _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen)
     v = model.to_volts(model.vdd) if wc is None else wc.v_final

@@ -10,8 +10,10 @@ threshold is the switching point measured from the same models.
 Candidates: every counted pattern when there are at most
 :data:`EXHAUSTIVE` of them (exact over patterns and cases); otherwise the
 :data:`RANKED` worst patterns with distinct shared nodes of the lumped
-model (:func:`analyze.search.analysis.worst_patterns`), which is then a
-ranking heuristic, said in the result's note.
+model (:func:`analyze.search.analysis.worst_patterns`), whose worst
+:func:`analyze.search.branch_bound.exact_worst` then proves the worst over
+every pattern (or finds and solves those that could be worse); where that
+walk gives up, the ranked worst stands, said in the result's note.
 
 Notes
 -----

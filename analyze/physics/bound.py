@@ -225,6 +225,9 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
     x_start = tables.clock_v if tables.clock_v is not None else start_x
     starts[x] = x_start
     grounded = {stage.rail, stage.footer_node} - {None}
+    # a gate held at a supply or clocked is no input, whatever the stage
+    # lists: the solver holds it at its fixed levels (gate_levels)
+    inputs = {n for n in inputs if n != stage.clock and _role(ctx, n) not in ("clock", "power", "ground")}
     devs = []  # (device, [(before, after) charge functions per state], [conducts per state])
     terms = {n: [] for n in members}
     for d in ctx.devices:
@@ -243,8 +246,10 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
             if t in terms:
                 terms[t].append(states)
 
-    caps = (_creep_caps(ctx, [n for n in members if n != x and n not in pre], x_start, terms)
-            if n_type else {})
+    # the caps time the creep from V_lim − 0.3 V: a node sharing with a
+    # precharged one may start past that, so then none are taken
+    caps = (_creep_caps(ctx, [n for n in members if n != x], x_start, terms)
+            if n_type and not (pre & inside) else {})
 
     def at(n, v):
         return min(v, caps[n]) if n in caps else v
@@ -287,6 +292,12 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
     return BoundParts(n_type, x, start_x,
                       [([n for n in inside if root(n) == key], devices) for key, devices in pieces.items()],
                       own, (-margin, vdd + margin), rest, term, frozenset(inside), receivers)
+
+
+def _role(ctx: ChargeContext, net: str):
+    """A net's role as :func:`analyze.physics.device_charge.gate_levels` reads it."""
+    nets = ctx.circuit.nets
+    return nets[net].role if net in nets else ctx.tech.role_of(net)
 
 
 def _creep_caps(ctx: ChargeContext, nodes, v_far: float, terms: dict) -> dict:

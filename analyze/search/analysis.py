@@ -206,7 +206,7 @@ def analyze_stage(
                          "these mos.nmos/mos.pmos numbers and node capacitances", f"stage {stage.dynamic_node}") from None
     counted = count_counted(model, choices)
     physics, physics_note = "level-1 (tech file)", None
-    prep = candidates = None
+    prep = candidates = exact = None
     if tech.models is not None and not precharged:
         from analyze.search.foundry import EXHAUSTIVE, RANKED, prepare_stage, solve_candidates
 
@@ -233,7 +233,8 @@ def analyze_stage(
                 if exact is not None:
                     found_f, chosen = exact.worst, None
                     candidates = candidates + exact.solved
-                    physics_note = (f"foundry-model worst case exact over all {counted} counted patterns and "
+                    every = "every" if counted is None else f"all {counted}"
+                    physics_note = (f"foundry-model worst case exact over {every} counted patterns and "
                                     f"every arrival case: the lumped model's {len(candidates) - len(exact.solved)} "
                                     f"worst patterns, then a branch and bound ({exact.nodes} partial patterns "
                                     f"bounded, {len(exact.solved)} left to solve)")
@@ -255,7 +256,11 @@ def analyze_stage(
         if prep is not None:
             from analyze.search.foundry_flags import prove_flags
 
-            flags, note = prove_flags(prep, circuit, stage, tech, constraints, candidates, flags, threshold)
+            lumped = flags
+            flags, note = prove_flags(prep, circuit, stage, tech, constraints, candidates, lumped, threshold)
+            if exact is not None:
+                flags, note = _flags_over_every_pattern(prep, circuit, stage, tech, constraints, model, choices,
+                                                        candidates, flags, lumped, threshold, note)
     return StageResult(
         stage=stage,
         threshold_v=threshold,
@@ -268,6 +273,38 @@ def analyze_stage(
         physics=physics,
         physics_note=physics_note,
     )
+
+
+#: Rounds of :func:`_flags_over_every_pattern`: each adds one pattern the
+#: flags fall short on and proves the flags again.
+FLAG_ROUNDS = 8
+
+
+def _flags_over_every_pattern(prep, circuit, stage, tech, constraints, model, choices, candidates, flags,
+                              lumped_flags, threshold, note):
+    """Flags of a wide stage that hold over every counted pattern: the
+    flags proven over the ranked patterns and the walk's leaves are checked
+    by the branch and bound (:func:`analyze.search.branch_bound.flags_hold`);
+    a pattern they fall short on joins the candidates and the flags are
+    proven again, up to :data:`FLAG_ROUNDS` times.  Returns the flags and
+    the note, which says how it ended."""
+    from analyze.search.branch_bound import flags_hold
+    from analyze.search.foundry_flags import prove_flags
+
+    n_type = stage.polarity == "n"
+    need = threshold + tech.guard if n_type else threshold - tech.guard
+    for _ in range(FLAG_ROUNDS):
+        if not flags:
+            return flags, note
+        short = flags_hold(prep, circuit, stage, tech, constraints, model, choices, [f.node for f in flags], need)
+        if short is None:
+            return flags, note + "; they hold over every counted pattern and arrival case (branch and bound)"
+        if short is False:
+            return flags, note + "; over every counted pattern not checked (the branch and bound gave up)"
+        candidates = candidates + [short]
+        flags, note = prove_flags(prep, circuit, stage, tech, constraints, candidates, lumped_flags, threshold)
+    return flags, note + (f"; after {FLAG_ROUNDS} patterns added from the branch and bound, some counted "
+                          "pattern may still end past the threshold plus guard with them")
 
 
 def _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen: str) -> str:

@@ -14,8 +14,8 @@ evaluated at the one voltage ``w`` plus the solver's tolerance, each stack
 piece at its largest over the input values still open (p-type: smallest).
 That balance never falls below any pattern's own (the bound's argument,
 given there), and it rises with the voltage, so where it is negative
-every pattern below the partial one ends above that voltage (p-type: the
-mirror) and the branch is dropped.  The patterns at the leaves are the
+every pattern below the partial one has its bound above that voltage and
+so ends above ``w`` (p-type: the mirror) and the branch is dropped.  The patterns at the leaves are the
 only ones that could end at or past ``w``; they are solved with
 :func:`analyze.search.foundry.solve_candidates` (which drops again those
 whose own bound is past the worst found).
@@ -46,7 +46,7 @@ from analyze.physics.device_charge import BOUND_TOLERANCE
 from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
 from analyze.search.foundry import solve_candidates
 
-__all__ = ["ExactWorst", "exact_worst", "bounded_patterns", "LEAVES", "NODES"]
+__all__ = ["ExactWorst", "exact_worst", "bounded_patterns", "flags_hold", "LEAVES", "NODES"]
 
 #: Patterns left at the leaves of one case's walk before it gives up.
 LEAVES = 1024
@@ -64,7 +64,7 @@ class ExactWorst:
         The worst over every counted pattern and case (``case`` set).
     solved : list of WorstCase
         The patterns the walk left (each possibly worse than the ranked
-        worst case), every case together.
+        worst case), every case together, each once.
     nodes : int
         Nodes the walks visited.
     """
@@ -107,7 +107,8 @@ def exact_worst(prep, circuit, stage, tech, constraints, model, choices, found) 
             return None
         leaves, visited = walk
         nodes += visited
-        solved += leaves
+        seen = {tuple(sorted(wc.inputs.items())) for wc in solved}
+        solved += [wc for wc in leaves if tuple(sorted(wc.inputs.items())) not in seen]
         if not leaves:
             continue
         wc = solve_candidates(prep, circuit, stage, tech, constraints, leaves, cases=(case,))
@@ -116,12 +117,14 @@ def exact_worst(prep, circuit, stage, tech, constraints, model, choices, found) 
     return ExactWorst(best, solved, nodes)
 
 
-def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, case: str, worst_v: float):
+def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, case: str, worst_v: float,
+                     precharged=frozenset()):
     """The counted patterns of one arrival case that the bound cannot show
-    to end past ``worst_v`` (n-type: above it plus
+    to end past ``worst_v`` (n-type: its bound above it plus
     :data:`analyze.physics.device_charge.BOUND_TOLERANCE`; p-type: below
     it less that), as WorstCase, and the walk's node count; None when the
-    walk gives up.
+    walk gives up.  Nodes in ``precharged`` start precharged
+    (predischarged) as well.
 
     Examples
     --------
@@ -132,11 +135,12 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
     n_type = stage.polarity == "n"
     sign = 1.0 if n_type else -1.0
     late = set(stage.inputs) if case == "rising" else top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
-    parts = bound_parts(ctx, stage.internal_nodes, stage.inputs, late)
+    # the model's inputs: a gate held at a supply or clocked is none
+    inputs = set(model.inputs)
+    parts = bound_parts(ctx, stage.internal_nodes, inputs, late, precharged)
     if not ctx.increasing([parts.x, *sorted(parts.inside)]):
         return None
     v = float(worst_v) + sign * BOUND_TOLERANCE
-    inputs = set(stage.inputs)
     grounded = {stage.rail, stage.footer_node} - {None}
 
     def is_input(d):
@@ -164,7 +168,8 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
     pieces = []  # unit index, fingerprint of the piece's physics
     for nodes_in, devices in parts.pieces:
         names = list(dict.fromkeys(d.gate for d, _, _ in devices if is_input(d)))
-        pieces.append((len(units), _fingerprint(ctx, stage, parts, nodes_in, devices, names, late)))
+        pieces.append((len(units), _fingerprint(ctx, stage, parts, nodes_in, devices, names, late,
+                                                inputs, precharged)))
         if 2 ** len(names) > COMBINATIONS:
             return None
         rows = []
@@ -256,7 +261,36 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
     return leaves, count[0]
 
 
-def _fingerprint(ctx, stage, parts, nodes_in, devices, names, late):
+def flags_hold(prep, circuit, stage, tech, constraints, model, choices, nodes, need_v: float):
+    """A counted pattern that, with ``nodes`` precharged (predischarged),
+    ends short of ``need_v`` (n-type: below it) in some arrival case, or
+    None when every one ends at or past it: the walk of
+    :func:`bounded_patterns` at ``need_v`` with those nodes precharged, its
+    leaves solved.
+
+    Returns
+    -------
+    WorstCase, None or False
+        The worst leaf short of ``need_v`` (``case`` set); None when there
+        is none; False when a walk gives up.
+    """
+    n_type = stage.polarity == "n"
+    sign = 1.0 if n_type else -1.0
+    pre = frozenset(nodes)
+    for case in arrival_cases(circuit, stage, constraints):
+        walk = bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, case, need_v, pre)
+        if walk is None:
+            return False
+        leaves = walk[0]
+        if not leaves:
+            continue
+        wc = solve_candidates(prep, circuit, stage, tech, constraints, leaves, cases=(case,), precharged=pre)
+        if wc is not None and sign * (wc.v_final - need_v) < 0.0:
+            return wc
+    return None
+
+
+def _fingerprint(ctx, stage, parts, nodes_in, devices, names, late, inputs, precharged):
     """What the solver sees of a stack piece, its nets renamed by first
     appearance (the dynamic node, rail and footer node by role): two pieces
     with equal fingerprints give the same final voltage with their inputs'
@@ -273,7 +307,7 @@ def _fingerprint(ctx, stage, parts, nodes_in, devices, names, late):
             local.setdefault(t, len(local))
         if d.gate in inputs:
             gate = ("input", inputs[d.gate], d.gate in late)
-        elif d.gate in set(stage.inputs) or d.gate in local or d.gate in set(nodes_in):
+        elif d.gate in inputs or d.gate in local or d.gate in set(nodes_in):
             return None
         else:
             gate = ("net", d.gate)
@@ -285,7 +319,7 @@ def _fingerprint(ctx, stage, parts, nodes_in, devices, names, late):
         if n not in local:
             return None
         r = ctx.rest(n)
-        out.append((local[n], n in stage.secondary_precharge, float(r.c_lin), r.c0.tobytes(), r.pb.tobytes(),
+        out.append((local[n], n in stage.secondary_precharge or n in precharged, float(r.c_lin), r.c0.tobytes(), r.pb.tobytes(),
                     r.m.tobytes(), r.body_high.tobytes()))
     return tuple(out)
 

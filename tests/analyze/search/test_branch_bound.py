@@ -155,3 +155,57 @@ def test_wide_or_exact(tech_tt, tmp_path, legs):
     assert r.status == "pass"
     assert "exact over all" in r.physics_note, r.physics_note
     assert all(r.worst_case.inputs[f"A{i}"] == 1 and r.worst_case.inputs[f"B{i}"] == 0 for i in range(legs))
+
+
+def test_gate_held_at_the_supply(tech_tt, tmp_path):
+    """An 8-leg OR whose first leg has a third device with its gate at VDD
+    (always on: no input, whatever the stage's input list holds): the walk
+    holds that gate at its level, and its worst is the brute-force worst."""
+    from sky130_stages import N
+
+    from analyze.search.analysis import _prepared, analyse_circuit
+    from analyze.search.foundry import prepare_stage, solve_candidates
+    from analyze.search.patterns import iter_counted
+    from extract.netlist.reader import read_schematic
+
+    ports, devices, caps = stages()["OR8x2"]
+    text = netlist("OR8V", ports, devices, caps)
+    # leg 0: X -A0- m0 -VDD- q0 -B0- f
+    text = text.replace(" m0 B0 f VSS ", " q0 B0 f VSS ")
+    text = text.replace(".ends", f"XV m0 VDD q0 VSS {N} w=0.65 l=0.15 ad=0.1722 as=0.1722 pd=1.83 ps=1.83\n.ends")
+    path = tmp_path / "or8v.sp"
+    path.write_text(text)
+    circuit = read_schematic(path, tech_tt)
+    _, (r,) = analyse_circuit(circuit, tech_tt)
+    assert "exact over all" in r.physics_note, r.physics_note
+    model, choices = _prepared(circuit, r.stage, tech_tt, None, frozenset())
+    assert "VDD" not in model.inputs
+    every = [model.outcome(v, c) for v, c in iter_counted(model, choices)]
+    prep = prepare_stage(circuit, r.stage, tech_tt)
+    brute = solve_candidates(prep, circuit, r.stage, tech_tt, None, every)
+    assert r.worst_case.v_final == pytest.approx(brute.v_final, abs=1e-9)
+
+
+def test_flags_of_a_failing_wide_or(tech_tt, tmp_path):
+    """An 8-leg OR with 4 fF on every leg's internal node fails.  Flags
+    proven over the ranked patterns alone (five legs precharged) leave a
+    pattern joining the other legs failing; the branch and bound finds it
+    and the flags are proven again with it.  Brute force (every pattern
+    solved with the flagged nodes precharged) agrees that they hold."""
+    from analyze.search.analysis import _prepared, analyse_circuit
+    from analyze.search.foundry import prepare_stage, solve_candidates
+    from analyze.search.patterns import iter_counted
+
+    circuit = _or8(tech_tt, tmp_path, [(f"m{i}", 4.0) for i in range(8)])
+    _, (r,) = analyse_circuit(circuit, tech_tt)
+    assert r.status == "fail" and "exact over all" in r.physics_note
+    assert r.flags, r.flag_note
+    model, choices = _prepared(circuit, r.stage, tech_tt, None, frozenset())
+    every = [model.outcome(v, c) for v, c in iter_counted(model, choices)]
+    prep = prepare_stage(circuit, r.stage, tech_tt)
+    brute = solve_candidates(prep, circuit, r.stage, tech_tt, None, every,
+                             precharged=frozenset(f.node for f in r.flags))
+    assert "they hold over every counted pattern" in r.flag_note, r.flag_note
+    assert brute.v_final - r.threshold_v >= tech_tt.guard
+    # over every pattern the worst can only be lower than over the candidates
+    assert brute.v_final <= r.flags[-1].v_final_after + 1e-9

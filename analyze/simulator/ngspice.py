@@ -236,6 +236,14 @@ def _last_message(log: str) -> str:
     return lines[-1][:200] if lines else "no output"
 
 
+def _environment() -> dict:
+    """The environment ngspice runs in: the caller's, with
+    ``OMP_NUM_THREADS=1`` unless it is set (see :func:`run_deck`)."""
+    env = dict(os.environ)
+    env.setdefault("OMP_NUM_THREADS", "1")
+    return env
+
+
 def run_deck(text: str, purpose: str, expect: Iterable[str] = (), tables: Iterable[str] = (),
              timeout: float = 600.0) -> SimulationResult:
     """Run a deck with ``ngspice -b`` and read what it printed.
@@ -271,7 +279,13 @@ def run_deck(text: str, purpose: str, expect: Iterable[str] = (), tables: Iterab
     -----
     One process per call; the cost is ngspice's (model loading dominates
     for foundry libraries, which is why callers put many analyses in one
-    deck).
+    deck).  ngspice runs with ``OMP_NUM_THREADS=1`` unless the caller's
+    environment sets it: Debian's ngspice is built with OpenMP, whose
+    threads do not pay on the few devices of a deck here, and decks run
+    side by side (``--simulate``) oversubscribe the cores with them (on
+    our 2-core machine, 16 sky130 cases two decks at a time: a median
+    6.9 s with the default threads, 4.2 s with one each; one deck at a
+    time, one thread was no slower).
     """
     global _runs
     program = shutil.which(NGSPICE)
@@ -287,7 +301,7 @@ def run_deck(text: str, purpose: str, expect: Iterable[str] = (), tables: Iterab
             _runs += 1
         try:
             proc = subprocess.run([program, "-b", path], capture_output=True, text=True,
-                                  timeout=timeout, cwd=tmp, errors="replace")
+                                  timeout=timeout, cwd=tmp, errors="replace", env=_environment())
         except subprocess.TimeoutExpired:
             raise InputError(purpose, f"ngspice did not finish within {timeout:g} s") from None
         log = proc.stdout + "\n" + proc.stderr

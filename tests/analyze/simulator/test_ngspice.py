@@ -76,3 +76,20 @@ def test_ngspice_missing_from_path(monkeypatch, tmp_path):
     assert err.value.line() == "ngspice: not found on PATH; install it (Debian: apt-get install ngspice)"
     assert os.environ["PATH"] == str(tmp_path)
     assert ngspice.NGSPICE == "ngspice"
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("given", [None, "2"])
+def test_openmp_threads_one_unless_set(monkeypatch, given):
+    """ngspice itself reports the thread count it was started with (its
+    ``shell`` command echoes the environment): one unless the caller set
+    OMP_NUM_THREADS, then the caller's."""
+    require_ngspice()
+    if given is None:
+        monkeypatch.delenv("OMP_NUM_THREADS", raising=False)
+    else:
+        monkeypatch.setenv("OMP_NUM_THREADS", given)
+    text = deck("threads", None, ["V1 a 0 1", "R1 a 0 1k"], ["shell echo threads=$OMP_NUM_THREADS", "op",
+                                                             "print v(a)"])
+    result = run_deck(text, "thread check", expect=["v(a)"])
+    assert f"threads={given or '1'}" in result.log

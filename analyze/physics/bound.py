@@ -22,7 +22,7 @@ from itertools import product
 import numpy as np
 from scipy.optimize import brentq
 
-from analyze.physics.device_charge import ChargeContext, gate_levels
+from analyze.physics.device_charge import ChargeContext, gate_held, gate_levels
 from analyze.physics.threshold import pass_limit
 
 __all__ = ["equalised_bound", "bound_parts", "BoundParts", "COMBINATIONS"]
@@ -130,6 +130,13 @@ class BoundParts:
         Devices on the dynamic node and no internal node, with their states.
     bracket : (float, float)
         The voltage range of the root search.
+    rest, term : callable
+        ``rest(n, v)``: node ``n``'s lumped charge at ``v`` less its start;
+        ``term(n, state, v)``: a device state's terminal charge on ``n``.
+    inside : frozenset of str
+        The internal nodes.
+    receivers : callable
+        The receivers' input charge at ``v`` less its start.
     """
 
     n_type: bool
@@ -141,6 +148,7 @@ class BoundParts:
     rest: object
     term: object
     inside: frozenset
+    receivers: object
 
     def joined(self, devices, choice) -> set:
         """The nodes the devices conducting in ``choice`` join to the
@@ -185,20 +193,21 @@ class BoundParts:
             c += pick(0.0, cn)
         return c
 
-    def own_sum(self, v, choice=None) -> float:
+    def on_x(self, d, state, v) -> float:
+        """Device ``d``'s terminal charge on the dynamic node in ``state``
+        (both terminals when both are on it)."""
+        return sum(self.term(self.x, state, v) for t in (d.drain, d.source) if t == self.x)
+
+    def own_sum(self, v) -> float:
         """The dynamic node's own terms: its rest and receivers, and the
-        devices on it alone, each in its state of ``choice`` (a state index
-        per :attr:`own` device) or at its largest (p-type: smallest)."""
+        devices on it alone, each at its largest (p-type: smallest)."""
         pick = max if self.n_type else min
         c = self.rest(self.x, v) + self.receivers(v)
-        for j, (d, states) in enumerate(self.own):
+        for d, states in self.own:
             for t in (d.drain, d.source):
                 if t == self.x:
-                    c += (pick(self.term(self.x, s, v) for s in states) if choice is None
-                          else self.term(self.x, states[choice[j]], v))
+                    c += pick(self.term(self.x, s, v) for s in states)
         return c
-
-    receivers: object = None
 
 
 def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=frozenset()) -> BoundParts:
@@ -227,7 +236,7 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
     grounded = {stage.rail, stage.footer_node} - {None}
     # a gate held at a supply or clocked is no input, whatever the stage
     # lists: the solver holds it at its fixed levels (gate_levels)
-    inputs = {n for n in inputs if n != stage.clock and _role(ctx, n) not in ("clock", "power", "ground")}
+    inputs = {n for n in inputs if not gate_held(ctx.circuit, stage, tech, n)}
     devs = []  # (device, [(before, after) charge functions per state], [conducts per state])
     terms = {n: [] for n in members}
     for d in ctx.devices:
@@ -292,12 +301,6 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
     return BoundParts(n_type, x, start_x,
                       [([n for n in inside if root(n) == key], devices) for key, devices in pieces.items()],
                       own, (-margin, vdd + margin), rest, term, frozenset(inside), receivers)
-
-
-def _role(ctx: ChargeContext, net: str):
-    """A net's role as :func:`analyze.physics.device_charge.gate_levels` reads it."""
-    nets = ctx.circuit.nets
-    return nets[net].role if net in nets else ctx.tech.role_of(net)
 
 
 def _creep_caps(ctx: ChargeContext, nodes, v_far: float, terms: dict) -> dict:

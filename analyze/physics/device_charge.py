@@ -75,6 +75,14 @@ def table_devices(circuit, stage) -> list:
     return circuit.devices_on(stage.dynamic_node, *stage.internal_nodes)
 
 
+def gate_held(circuit, stage, tech, net: str) -> bool:
+    """Whether :func:`gate_levels` holds a gate on ``net`` at fixed levels
+    whatever the pattern: the stage's clock, or a net whose role is clock,
+    power or ground (a listed input or not)."""
+    role = circuit.nets[net].role if net in circuit.nets else tech.role_of(net)
+    return net == stage.clock or role in ("clock", "power", "ground")
+
+
 def gate_levels(circuit, stage, tech, inputs: dict, late: set, devices=None) -> GateLevels:
     """Gate levels (V) before and after the clock edge for a pattern.
 

@@ -231,11 +231,12 @@ def analyze_stage(
 
                 exact = exact_worst(prep, circuit, stage, tech, constraints, model, choices, found_f)
                 if exact is not None:
+                    ranked = len(candidates)
                     found_f, chosen = exact.worst, None
                     candidates = candidates + exact.solved
                     every = "every" if counted is None else f"all {counted}"
                     physics_note = (f"foundry-model worst case exact over {every} counted patterns and "
-                                    f"every arrival case: the lumped model's {len(candidates) - len(exact.solved)} "
+                                    f"every arrival case: the lumped model's {ranked} "
                                     f"worst patterns, then a branch and bound ({exact.nodes} partial patterns "
                                     f"bounded, {len(exact.solved)} left to solve)")
             if found_f is not None:

@@ -43,7 +43,7 @@ import numpy as np
 
 from analyze.physics.bound import COMBINATIONS, bound_parts
 from analyze.physics.device_charge import BOUND_TOLERANCE
-from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
+from analyze.search.cases import arrival_cases, late_inputs
 from analyze.search.foundry import solve_candidates
 
 __all__ = ["ExactWorst", "exact_worst", "bounded_patterns", "flags_hold", "LEAVES", "NODES"]
@@ -134,7 +134,7 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
     ctx = prep.context
     n_type = stage.polarity == "n"
     sign = 1.0 if n_type else -1.0
-    late = set(stage.inputs) if case == "rising" else top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
+    late = late_inputs(circuit, stage, constraints, case)
     # the model's inputs: a gate held at a supply or clocked is none
     inputs = set(model.inputs)
     parts = bound_parts(ctx, stage.internal_nodes, inputs, late, precharged)
@@ -155,15 +155,14 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
     units = []  # per unit: its inputs, [(values, signed sum)] of its counted combinations
     for d, states in parts.own:
         if not is_input(d):
-            base += sign * sum(parts.term(parts.x, states[0], v) for t in (d.drain, d.source) if t == parts.x)
+            base += sign * parts.on_x(d, states[0], v)
             continue
         rows = []
         for value in (0, 1):
             if state(value) and grounded & {d.drain, d.source}:
                 continue  # on, it ties the dynamic node to the rail: not counted
             k = state(value) if len(states) > 1 else 0
-            rows.append(((value,), sign * sum(parts.term(parts.x, states[k], v)
-                                              for t in (d.drain, d.source) if t == parts.x)))
+            rows.append(((value,), sign * parts.on_x(d, states[k], v)))
         units.append(((d.gate,), rows))
     pieces = []  # unit index, fingerprint of the piece's physics
     for nodes_in, devices in parts.pieces:

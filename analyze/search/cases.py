@@ -25,7 +25,7 @@ from analyze.search.constraints import Constraints
 from analyze.stages.stage import Stage
 from extract.circuit import Circuit
 
-__all__ = ["CASES", "arrival_cases", "input_levels", "top_inputs", "low_in_precharge"]
+__all__ = ["CASES", "arrival_cases", "input_levels", "late_inputs", "top_inputs", "low_in_precharge"]
 
 CASES = ("rising", "settled")
 
@@ -75,6 +75,23 @@ def arrival_cases(circuit: Circuit, stage: Stage, constraints: Constraints | Non
         return ("rising",)
     early = set(stage.inputs) - top_inputs(circuit, stage) - low_in_precharge(stage, constraints)
     return CASES if early else ("rising",)
+
+
+def late_inputs(circuit: Circuit, stage: Stage, constraints: Constraints | None, case: str) -> set[str]:
+    """The inputs that change at the start of evaluation in ``case``: every
+    one when rising; when settled, the top inputs and those low in
+    precharge.
+
+    >>> from extract.circuit import Device
+    >>> c = Circuit("c", {}, [Device("MA", "nmos", "X", "A", "n1", 1, .15),
+    ...                      Device("MB", "nmos", "n1", "B", "f", 1, .15)])
+    >>> s = Stage("X", "n", "CLK", "VDD", "VSS", ("MP",), ("MA", "MB"), "MF", "f", ("A", "B"), ("n1",))
+    >>> sorted(late_inputs(c, s, None, "rising")), sorted(late_inputs(c, s, None, "settled"))
+    (['A', 'B'], ['A'])
+    """
+    if case == "rising":
+        return set(stage.inputs)
+    return top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
 
 
 def input_levels(circuit: Circuit, stage: Stage, pattern: dict[str, int], case: str,

@@ -30,7 +30,7 @@ from analyze.physics.device_charge import (BOUND_TOLERANCE, charge_context, cloc
                                            table_devices)
 from analyze.physics.device_tables import stage_tables
 from analyze.physics.threshold import pass_limit
-from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
+from analyze.search.cases import arrival_cases, late_inputs
 
 __all__ = ["FoundryOutcome", "FoundryStage", "foundry_worst_case", "prepare_stage", "solve_candidates",
            "precharged_through",
@@ -127,7 +127,6 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
     n_type = stage.polarity == "n"
     sign = 1.0 if n_type else -1.0
     cases = arrival_cases(circuit, stage, constraints) if cases is None else tuple(cases)
-    late_top = top_inputs(circuit, stage) | low_in_precharge(stage, constraints)
     start_x, start_int = (vdd, 0.0) if n_type else (0.0, vdd)
     pre = set(stage.secondary_precharge) | set(precharged)
     items, values, pending = [], {}, []
@@ -141,7 +140,7 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
                  if d.name in stage.evaluation and wc.inputs.get(d.gate) == on
                  and d.drain in members and d.source in members]
         for case in cases:
-            late = set(stage.inputs) if case == "rising" else late_top
+            late = late_inputs(circuit, stage, constraints, case)
             lv = gate_levels(circuit, stage, tech, wc.inputs, late, prep.devices)
             st = precharged_through(prep, stage, tech, wc.inputs, late, pre, start)
             # the result depends only on the group, its starts, the levels of

@@ -269,6 +269,21 @@ class Circuit:
             raise KeyError(name)
         return d
 
+    def role_of(self, net: str, tech) -> str:
+        """``"power"``, ``"ground"``, ``"clock"`` or ``"signal"``: the role
+        of ``net`` as extraction recorded it, else by the tech file's net
+        names (:meth:`extract.tech.Tech.role_of`; a net no device or shape
+        reached, such as a name from a constraints file).
+
+        >>> from extract.tech import NetRoles, Tech
+        >>> t = Tech("t", 1.8, NetRoles(("VDD",), ("VSS",), ("CLK",)), {}, {})
+        >>> c = Circuit("c", {"clk": Net("clk", "clock")}, [])
+        >>> c.role_of("clk", t), c.role_of("VSS", t), c.role_of("n1", t)
+        ('clock', 'ground', 'signal')
+        """
+        found = self.nets.get(net)
+        return found.role if found is not None else tech.role_of(net)
+
     def devices_by_name(self) -> dict[str, Device]:
         """Device name -> device (the index :meth:`device` uses), made
         again when the device list changed length; read it, do not change

@@ -79,7 +79,7 @@ def gate_held(circuit, stage, tech, net: str) -> bool:
     """Whether :func:`gate_levels` holds a gate on ``net`` at fixed levels
     whatever the pattern: the stage's clock, or a net whose role is clock,
     power or ground (a listed input or not)."""
-    role = circuit.nets[net].role if net in circuit.nets else tech.role_of(net)
+    role = circuit.role_of(net, tech)
     return net == stage.clock or role in ("clock", "power", "ground")
 
 
@@ -103,7 +103,7 @@ def gate_levels(circuit, stage, tech, inputs: dict, late: set, devices=None) -> 
     before, after = {}, {}
     clocked = set(stage.precharge) | set(stage.secondary_precharge.values())
     for d in table_devices(circuit, stage) if devices is None else devices:
-        role = circuit.nets[d.gate].role if d.gate in circuit.nets else tech.role_of(d.gate)
+        role = circuit.role_of(d.gate, tech)
         if d.name in stage.keepers:
             level = vdd if d.type == "pmos" else 0.0  # keeper help left out: held off
             before[d.name] = after[d.name] = level
@@ -138,7 +138,7 @@ def clock_setup(circuit, stage, tech, devices=None) -> dict:
     for d in tdevs:
         if stage.dynamic_node not in (d.drain, d.source):
             continue
-        role = circuit.nets[d.gate].role if d.gate in circuit.nets else tech.role_of(d.gate)
+        role = circuit.role_of(d.gate, tech)
         out.append((d.name, "clocked" if (d.gate == stage.clock or role == "clock") and d.name not in stage.evaluation
                     else "off"))
     for j, rx in enumerate(stage.receivers):

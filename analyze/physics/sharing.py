@@ -490,7 +490,7 @@ def build_model(circuit: Circuit, stage: Stage, tech: Tech, precharged=frozenset
     n_type = stage.polarity == "n"
 
     def role(net: str) -> str:
-        return circuit.nets[net].role if net in circuit.nets else tech.role_of(net)
+        return circuit.role_of(net, tech)
 
     rail_role, supply_role = ("ground", "power") if n_type else ("power", "ground")
     devs = [circuit.device(name) for name in stage.evaluation]

@@ -142,7 +142,7 @@ def device_line(name: str, dev: Device, d: str, g: str, s: str, b: str, model: s
 
 
 def _role(circuit: Circuit, tech: Tech, net: str) -> str:
-    return circuit.nets[net].role if net in circuit.nets else tech.role_of(net)
+    return circuit.role_of(net, tech)
 
 
 def _outside_parts(circuit: Circuit, tech: Tech, inside: set[str], nets: set[str]) -> dict[str, CapParts]:

@@ -98,14 +98,14 @@ def test_surface_at_the_held_levels_is_the_held_table(measured):
     surface's columns at 0 and VDD, the latter up to the constant
     Q_g(0, VDD) that the surface adds (its charges are relative to
     v_in = v_out = 0, the held tables' to v_in = 0)."""
-    from analyze.physics.device_tables import _measure
+    from analyze.physics.table_measurement import measure_charges
     from analyze.physics.receiver_tables import output_levels
 
     tech, pruned, made, resp = measured
     from analyze.simulator.instances import transistor_line
     from analyze.simulator.ngspice import deck, run_deck
 
-    held = _measure([["r", "MN", WN, LN, WP, LP]], {"nmos": N, "pmos": P}, pruned, 1.8, "tt", transistor_line,
+    held = measure_charges([["r", "MN", WN, LN, WP, LP]], {"nmos": N, "pmos": P}, pruned, 1.8, "tt", transistor_line,
                     deck, run_deck)["held"]
     q = np.asarray(made["q"][0])
     levels = list(np.round(output_levels(1.8), 9))

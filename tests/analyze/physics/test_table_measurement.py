@@ -1,4 +1,4 @@
-"""Device tables measured once per distinct device (analyze.physics.device_tables).
+"""Device tables measured once per distinct device (analyze.physics.table_measurement).
 
 Sources: a hand-made layout of what each item must get (the first
 ``test``); ngspice (Debian package ``ngspice``) with the SkyWater open
@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 
 from analyze.physics import device_tables as dt
+from analyze.physics import table_measurement as tm
 
 
 def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
@@ -36,9 +37,9 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
         seen["r"] = [tuple(it) for it in items]
         return {"q": [[[100.0 + k]] for k in range(len(items))], "i": [[[200.0 + k]] for k in range(len(items))]}
 
-    monkeypatch.setattr(dt, "_measure", fake_measure)
-    monkeypatch.setattr(dt, "_measure_currents", fake_currents)
-    monkeypatch.setattr(dt, "measure_responses", fake_responses)
+    monkeypatch.setattr(tm, "measure_charges", fake_measure)
+    monkeypatch.setattr(tm, "measure_currents", fake_currents)
+    monkeypatch.setattr(tm, "measure_responses", fake_responses)
     items = [["t", "M1", "nmos", 0.65, 0.15, 0.0],
              ["t", "M2", "nmos", 0.65, 0.15, 0.0],     # = item 0 but for the name
              ["t", "M2", "nmos", 0.65, 0.15, 1.8],
@@ -47,7 +48,7 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
              ["i", "M3", "nmos", 1.0, 0.15],
              ["r", "M8", 0.42, 0.15, 0.84, 0.15],
              ["r", "M9", 0.42, 0.15, 0.84, 0.15]]      # = item 6
-    out = dt._measure_distinct(items, {}, None, 1.8, "tt", None, None, None)
+    out = tm.measure_distinct(items, {}, None, 1.8, "tt", None, None, None)
     # distinct items in first-met order: 0, 2, 3, 5, 6 -> 0..4
     assert seen["q"] == seen["i"] == [tuple(items[k]) for k in (0, 2, 3, 5, 6)]
     assert out["q"] == [[0.0], [0.0], [1.0], [2.0], [2.0], [3.0], [4.0], [4.0]]
@@ -84,16 +85,16 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
 
     def every_device(items, *rest):
         # the measurement before devices were shared: every item in the decks
-        made = dt._measure(items, *rest)
-        made["i"] = dt._measure_currents(items, *rest)
+        made = tm.measure_charges(items, *rest)
+        made["i"] = tm.measure_currents(items, *rest)
         rx = [k for k, it in enumerate(items) if it[0] == "r"]
-        resp = dt.measure_responses([items[k] for k in rx], *rest, dt.GRID_STEPS)
+        resp = tm.measure_responses([items[k] for k in rx], *rest, tm.GRID_STEPS)
         made["response_q"] = {str(k): resp["q"][m] for m, k in enumerate(rx)}
         made["response_i"] = {str(k): resp["i"][m] for m, k in enumerate(rx)}
         return made
 
     monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache2"))
-    monkeypatch.setattr(dt, "_measure_distinct", every_device)
+    monkeypatch.setattr(tm, "measure_distinct", every_device)
     alone = dt.stage_tables(circuit, stage, tech, levels, passes=passes)
     assert len(shared.currents) == len(passes) == 8   # the eight devices of the four legs
     assert shared.currents.keys() == alone.currents.keys() and shared.terminals.keys() == alone.terminals.keys()

@@ -305,7 +305,7 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
 
 def _creep_caps(ctx: ChargeContext, nodes, v_far: float, terms: dict) -> dict:
     """For each internal node of an n-type stage, a voltage it cannot pass
-    by the end of the window in :func:`final_voltage_with_devices`:
+    by the end of the window in :func:`analyze.physics.settling.final_voltage_with_devices`:
     max(V_lim, V_cap), t(V_cap) = ∫ C_min(V) / I_max(V) dV from the creep's
     start (V_lim − 0.3 V) = ``evaluation_ns``; C_min is the node's
     capacitance with each device's part at its smallest over the gate

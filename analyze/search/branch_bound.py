@@ -42,7 +42,7 @@ from itertools import product
 import numpy as np
 
 from analyze.physics.bound import COMBINATIONS, bound_parts
-from analyze.physics.device_charge import BOUND_TOLERANCE
+from analyze.physics.settling import BOUND_TOLERANCE
 from analyze.search.cases import arrival_cases, late_inputs
 from analyze.search.foundry import solve_candidates
 
@@ -121,7 +121,7 @@ def bounded_patterns(prep, circuit, stage, tech, constraints, model, choices, ca
                      precharged=frozenset()):
     """The counted patterns of one arrival case that the bound cannot show
     to end past ``worst_v`` (n-type: its bound above it plus
-    :data:`analyze.physics.device_charge.BOUND_TOLERANCE`; p-type: below
+    :data:`analyze.physics.settling.BOUND_TOLERANCE`; p-type: below
     it less that), as WorstCase, and the walk's node count; None when the
     walk gives up.  Nodes in ``precharged`` start precharged
     (predischarged) as well.

@@ -2,7 +2,7 @@
 
 When the tech file has ``[models]``, :func:`foundry_worst_case` re-solves
 the candidate patterns of a stage with
-:func:`analyze.physics.device_charge.final_voltage_with_devices` for every
+:func:`analyze.physics.settling.final_voltage_with_devices` for every
 input-arrival case the constraints allow (:mod:`analyze.search.cases`),
 and takes the lowest final voltage (p-type: highest).  The receiver
 threshold is the switching point measured from the same models.
@@ -26,8 +26,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
-from analyze.physics.device_charge import (BOUND_TOLERANCE, charge_context, clock_setup, gate_levels, settle,
-                                           table_devices)
+from analyze.physics.device_charge import charge_context, clock_setup, gate_levels, table_devices
+from analyze.physics.settling import BOUND_TOLERANCE, settle
 from analyze.physics.device_tables import stage_tables
 from analyze.physics.threshold import pass_limit
 from analyze.search.cases import arrival_cases, late_inputs
@@ -118,7 +118,7 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
     The worst is the lowest final voltage (p-type: highest), the first of
     the candidates and cases in order among equals.  The creep past the
     pass limit (a stiff ODE) is the costly part of a solve; a pattern and
-    case whose proven bound (:class:`analyze.physics.device_charge.Settling`)
+    case whose proven bound (:class:`analyze.physics.settling.Settling`)
     is already past the worst found cannot be the worst and is left out,
     so the creeps are solved in the order of their bounds, the most
     promising first.  The result is the same as solving every one.
@@ -206,7 +206,7 @@ def solve_candidates(prep: FoundryStage, circuit, stage, tech, constraints, cand
 
 
 def _settling(prep: FoundryStage, key, group, levels, start, links):
-    """The :class:`analyze.physics.device_charge.Settling` of one group,
+    """The :class:`analyze.physics.settling.Settling` of one group,
     remembered by ``key`` while its creep is unsolved (two candidates or
     cases can share a key)."""
     memo = prep.pending

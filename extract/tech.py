@@ -174,6 +174,11 @@ class Models:
     length_um : float or None
         ``[models] length``: the channel length (µm) at which
         ``characterize`` fits the device parameters; None: its default.
+    temperature_c : float
+        ``[models] temperature``: the temperature (°C, SPICE's ``.temp``)
+        of every simulation and measurement with the models — the device
+        tables of the analysis, ``--simulate``'s decks and ``characterize``'s
+        fit; 27 by default.
     """
 
     library: str
@@ -181,6 +186,7 @@ class Models:
     nmos: str = ""
     pmos: str = ""
     length_um: float | None = None
+    temperature_c: float = 27.0
 
 
 @dataclass(frozen=True)

@@ -436,10 +436,15 @@ def _models(r: _Reader, table, path: str) -> Models | None:
     """``[models]``: the library path is made absolute against the tech file."""
     if table is None:
         return None
-    r.keys(table, "models", ("library", "corners", "nmos", "pmos", "length"), ("library", "nmos", "pmos"))
+    r.keys(table, "models", ("library", "corners", "nmos", "pmos", "length", "temperature"),
+           ("library", "nmos", "pmos"))
     length = r.number(table, "models", "length", ">0")
     if length is not None and length > 1000:
         r.fail("models.length", f"must be at most 1000 µm, got {table['length']}")
+    temperature = r.number(table, "models", "temperature", None, 27.0)
+    if not -273.15 < temperature <= 500.0:
+        r.fail("models.temperature", f"must be a temperature in °C above -273.15 and at most 500, "
+                                     f"got {table['temperature']}")
     library = r.string(table["library"], "models.library")
     if not os.path.isabs(library) and not path.startswith("<"):
         library = os.path.join(os.path.dirname(os.path.abspath(path)), library)
@@ -454,7 +459,7 @@ def _models(r: _Reader, table, path: str) -> Models | None:
         devices[kind] = r.string(table[kind], f"models.{kind}")
         if not re.fullmatch(r"[A-Za-z_][\w.$]*", devices[kind]):
             r.fail(f"models.{kind}", f"not a SPICE device name: {devices[kind]!r}")
-    return Models(library=library, corners=corners, length_um=length, **devices)
+    return Models(library=library, corners=corners, length_um=length, temperature_c=float(temperature), **devices)
 
 
 def _prelayout(r: _Reader, table) -> Prelayout:

@@ -4,8 +4,10 @@ Every table of the input is kept with its values (comments and layout of
 the input are not: the file is written anew); ``[mos.nmos]`` and
 ``[mos.pmos]`` get the fitted numbers, each with a comment block saying
 where they came from and how well they fit; ``[models] corners`` names the
-one corner the file is for, and ``[models] library`` is rewritten relative
-to the output's folder so the new file finds the same library.
+one corner the file is for, ``[models] temperature`` the temperature it was
+fitted at (so that the analysis and ``--simulate`` run there too), and
+``[models] library`` is rewritten relative to the output's folder so the
+new file finds the same library.
 
 Examples
 --------
@@ -149,6 +151,8 @@ def fitted_tech_text(source_text: str, fit: CornerFit, out_path: str) -> str:
     except ValueError:  # another drive (Windows)
         models["library"] = fit.library
     models["corners"] = [fit.corner] if fit.corner else []
+    # the analysis and --simulate then run at the temperature of the fit
+    models["temperature"] = float(fit.temp_c)
     data["models"] = models
     mos = dict(data.get("mos", {}))
     comments = {}

@@ -97,11 +97,15 @@ def run(args) -> int:
     with open(args.tech, encoding="utf-8-sig") as fh:
         source = fh.read()
     length = args.length or models.length_um
+    temp_c = models.temperature_c if args.temp is None else args.temp
+    if not -273.15 < temp_c <= 500.0:
+        raise InputError(args.tech, f"must be a temperature in C above -273.15 and at most 500, got {temp_c:g}",
+                         "--temp")
     for corner in corners:  # every section and device found before anything is simulated
         prune_models(models, corner, [models.nmos, models.pmos])
     texts, fits = [], []
     for corner, out in zip(corners, outputs):
-        fit = characterize_corner(models, corner, tech.vdd, length, args.width or 1.0, args.temp)
+        fit = characterize_corner(models, corner, tech.vdd, length, args.width or 1.0, temp_c)
         text = fitted_tech_text(source, fit, out)
         parse_tech(text, out)  # the file must be one that check accepts
         texts.append(text)

@@ -90,7 +90,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--length", type=float, metavar="UM",
                    help="channel length in um (default: [models] length, else the shortest binned length)")
     p.add_argument("--width", type=float, metavar="UM", help="width of the threshold device in um (default 1)")
-    p.add_argument("--temp", type=float, default=27.0, metavar="C", help="temperature in C (default 27)")
+    p.add_argument("--temp", type=float, default=None, metavar="C",
+                   help="temperature in C (default: [models] temperature, else 27); written to the output")
     p.add_argument("--json", metavar="OUT", help="write the fit results as JSON ('-' for stdout)")
 
     p = sub.add_parser("demo", help="the whole job on the bundled sample layouts")

@@ -292,8 +292,7 @@ def bound_parts(ctx: ChargeContext, nodes, inputs, late=frozenset(), precharged=
         else:
             own.append((d, states))
 
-    pbs = [float(p) for n in members for p in ctx.rest(n).pb] or [1.0]
-    margin = 0.9 * min(pbs)
+    margin = min([ctx.rest(n).forward_margin() for n in members] or [0.9])
 
     def receivers(v):
         return sum(float(g(v)) - float(g(x_start)) for g in ctx.receivers)

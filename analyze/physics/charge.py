@@ -54,8 +54,11 @@ def _depletion_terms(pb, m, vr):
     x = 1.0 + vr / pb
     one = np.isclose(m, 1.0)
     e = np.where(one, 0.5, 1.0 - m)
-    power = (x**e - 1.0) / e
-    return np.where(one, np.log(x), power)
+    # both branches are computed everywhere: a linear part (M = 0) may be
+    # past -PB, where its power form holds and the unused log is NaN
+    with np.errstate(invalid="ignore", divide="ignore"):
+        power = (x**e - 1.0) / e
+        return np.where(one, np.log(x), power)
 
 
 def depletion_charge(c0, pb, m, vr):
@@ -173,6 +176,28 @@ class NodeCharge:
             raise AttributeError(name)
         object.__setattr__(self, name, value)
         return value
+
+    def forward_margin(self) -> float:
+        """How far past its rails (V) the node's voltage may go with every
+        junction part's formula valid.
+
+        The depletion formula needs ``1 + VR/PB > 0`` (it holds to a forward
+        bias of PB); the margin is 0.9 × the smallest PB among the parts
+        that are present (C0 > 0) and graded (M > 0), since a part with
+        M = 0 is a linear capacitor, valid at any bias (a fit to a flat
+        sidewall may leave its PB anywhere); 0.9 V when no part bends.
+
+        Examples
+        --------
+        >>> kw = dict(body_high=np.zeros(2, dtype=bool), vdd=1.8)
+        >>> NodeCharge(1.0, np.array([1.0, 0.2]), np.array([0.7, 0.05]), np.array([0.4, 0.0]), **kw).forward_margin()
+        0.63
+        >>> NodeCharge.linear(1.0, 1.8).forward_margin()
+        0.9
+        """
+        bends = [float(p) for c, p, m in zip(self.c0.tolist(), self.pb.tolist(), self.m.tolist())
+                 if c > 0.0 and m > 0.0]
+        return round(0.9 * min(bends), 12) if bends else 0.9
 
     def like(self, c_lin: float, c0: np.ndarray, vdd: float | None = None) -> "NodeCharge":
         """A node charge with these junction parts (``pb``, ``m``, body) and

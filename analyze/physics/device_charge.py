@@ -255,7 +255,7 @@ def charge_context(circuit, stage, tech, tables) -> ChargeContext:
         for net, resps in by_net.items():
             rest = ctx.rest(net)
             # as far past the rails as the junction formula holds (settle's bracket)
-            margin = 0.9 * min([float(p) for p in rest.pb] or [1.0])
+            margin = rest.forward_margin()
             grid = np.linspace(-margin, vdd + margin, 401)
             cap = np.maximum(np.gradient(np.asarray(rest.charge(grid), dtype=float), grid), 1e-6)
             ctx.outputs.append(OutputNode(net, uniform_lookup(grid, cap), resps, 0.0 if held == "lo" else vdd))

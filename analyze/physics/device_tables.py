@@ -53,8 +53,9 @@ gets its own pair of sources and every receiver its own inverter, on one
 transient (gate ramp 0 -> level in 1 ns, then source/drain or input ramp
 0 -> VDD in 2 ns), plus one DC sweep for the switching points and one
 per drain–source voltage for the currents.
+Every deck runs at ``[models] temperature`` (27 °C by default).
 Results are cached on disk (``$DYNSHARE_CACHE``) by the pruned model file,
-corner, VDD and the list of what is measured, so a second check measures
+corner, VDD, temperature and the list of what is measured, so a second check measures
 nothing.
 """
 
@@ -345,13 +346,14 @@ def _digest(path: str) -> bytes:
     return digest
 
 
-def _key(path: str, corner, vdd: float, items) -> str:
+def _key(path: str, corner, vdd: float, items, temp_c: float = 27.0) -> str:
     h = hashlib.sha256()
     h.update(_digest(path))
     # everything the stored numbers depend on besides the items: the grids
     # and the receiver surfaces' output levels and ramps
     h.update(json.dumps(["ramp-integral-7", str(corner), vdd, GRID_STEPS, output_levels(vdd).tolist(),
-                         RAMP_START_NS, RAMP_NS, items], sort_keys=True).encode())
+                         RAMP_START_NS, RAMP_NS, items] + ([] if temp_c == 27.0 else [temp_c]),
+                        sort_keys=True).encode())
     return h.hexdigest()[:24]
 
 
@@ -443,7 +445,8 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
                        for name, role in clock["devices"]]
         clock_items = [clock_items, round(float(clock["cap_ff"]), 6), round(float(tech.evaluation_ns), 6),
                        stage.polarity]
-    key = _key(pruned.path, corner, vdd, [items, clock_items])
+    temp_c = float(models.temperature_c)
+    key = _key(pruned.path, corner, vdd, [items, clock_items], temp_c)
     cache = os.path.join(cache_dir("tables", create=False), key + ".json")
     made = _made(cache)
     if made is not None:
@@ -454,10 +457,10 @@ def stage_tables(circuit, stage, tech: Tech, gate_levels: dict, corner=None, pas
             data = json.load(fh)
     except FileNotFoundError:
         data = table_measurement.measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck,
-                                                  run_deck)
+                                                  run_deck, temp_c=temp_c)
         data["clock_v"] = (None if clock_items is None else
                            table_measurement.measure_clock(clock_items, names, pruned, vdd, corner,
-                                                           transistor_line, deck, run_deck))
+                                                           transistor_line, deck, run_deck, temp_c=temp_c))
         cache = os.path.join(cache_dir("tables"), key + ".json")
         tmp = cache + f".{os.getpid()}.tmp"
         with open(tmp, "w") as fh:

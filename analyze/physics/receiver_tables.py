@@ -64,7 +64,8 @@ def output_levels(vdd: float) -> np.ndarray:
     return vdd * k / OUTPUT_STEPS
 
 
-def measure_responses(items, names, pruned, vdd: float, corner, transistor_line, deck, run_deck, steps: int) -> dict:
+def measure_responses(items, names, pruned, vdd: float, corner, transistor_line, deck, run_deck, steps: int,
+                      temp_c: float = 27.0) -> dict:
     """Measure the response surfaces of receiver ``items``.
 
     Parameters
@@ -83,6 +84,8 @@ def measure_responses(items, names, pruned, vdd: float, corner, transistor_line,
         does not import the simulator at module level).
     steps : int
         Input grid: 0 … VDD in ``steps`` steps.
+    temp_c : float
+        Temperature of the deck, °C (``.temp``).
 
     Returns
     -------
@@ -125,7 +128,7 @@ def measure_responses(items, names, pruned, vdd: float, corner, transistor_line,
                      f"wrdata rq{j}.txt i(Vcal) " + " ".join(f"i(Vi{k}) i(Vz{k})" for k in range(len(items))),
                      f"dc Vsw 0 {vdd:.6g} {vdd / steps:.6g}",
                      f"wrdata ri{j}.txt " + " ".join(f"i(Vd{k})" for k in range(len(items)))]
-    options = [".temp 27"]
+    options = [f".temp {temp_c:g}"]
     if pruned.scale is not None:
         options.append(f".option scale={pruned.scale:.6g}")
     text = deck(f"dynshare: receiver response tables at corner {corner}", pruned.path, lines, commands, options)

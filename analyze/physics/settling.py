@@ -184,8 +184,7 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
     def f_equal(v):
         return sum(q_node(n, v, 1) for n in group) - total
 
-    pbs = [float(x) for n in group for x in rests[n].pb] or [1.0]
-    margin = 0.9 * min(pbs)
+    margin = min(rests[n].forward_margin() for n in group)
     v_eq = brentq(f_equal, -margin, vdd + margin, xtol=1e-7)
     x = stage.dynamic_node
     keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}

@@ -18,9 +18,10 @@ models (a pruned model file, :func:`analyze.simulator.models.prune_models`):
     :func:`analyze.physics.receiver_tables.measure_responses`) with each
     distinct device measured once.
 
-Every function takes the measurement items of ``stage_tables`` and the
-deck helpers (``transistor_line``, ``deck``, ``run_deck``) as arguments, so
-a test can stand in for ngspice.  Charges are found by integrating the
+Every function takes the measurement items of ``stage_tables``, the deck
+helpers (``transistor_line``, ``deck``, ``run_deck``; passed in, so a test
+can stand in for ngspice) and the temperature (``temp_c``, °C: ``[models]
+temperature``) as arguments.  Charges are found by integrating the
 current a slow quasi-static ramp draws, calibrated by a 1 fF capacitor on a
 ramp of its own (:mod:`analyze.physics.ramp_charge`).
 """
@@ -41,7 +42,7 @@ GRID_STEPS = 180
 VDS_GRID = (0.002, 0.005, 0.01, 0.02, 0.04, 0.08, 0.15, 0.3, 0.6, 1.0, 1.8)
 
 
-def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
     """:func:`measure_charges` and :func:`measure_currents` of ``items`` with each
     distinct measurement made once: items that differ only in the device's
     name (the legs of a wide OR: the same type, W, L and gate level) share
@@ -57,13 +58,13 @@ def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, r
         if distinct[u] is None:
             distinct[u] = it
     receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
-    made = measure_charges(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
-    made_i = measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck)
+    made = measure_charges(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c)
+    made_i = measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c)
     # one after another: run side by side in threads, the three runs took
     # several times longer on a 2-core machine (measured; Debian's ngspice
     # is built with OpenMP, and timings there swing widely)
     made_r = measure_responses([distinct[u] for u in receivers], names, pruned, vdd, corner, transistor_line, deck,
-                               run_deck, GRID_STEPS)
+                               run_deck, GRID_STEPS, temp_c)
     at = {u: m for m, u in enumerate(receivers)}
     held = {f"{h}{k}": made["held"][f"{h}{u}"] for k, u in enumerate(which) for h in ("lo", "hi")
             if f"{h}{u}" in made["held"]}
@@ -74,7 +75,7 @@ def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, r
             "response_i": {str(k): made_r["i"][at[u]] for k, u in enumerate(which) if u in at}}
 
 
-def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
     """One transient and one DC sweep: the charges by integrating the
     currents that quasi-static ramps draw (gate ramp 0 -> level in the first
     ns, then the tied source/drain ramp 0 -> VDD over 2 ns); a 1 fF capacitor
@@ -121,7 +122,7 @@ def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, ru
     dc_vectors = [f"v(odc{k})" for kind_, k in rows if kind_ == "r"]
     if dc_vectors:
         commands += [f"dc Vsw 0 {vdd:.6g} {vdd / GRID_STEPS:.6g}", "wrdata transfer.txt " + " ".join(dc_vectors)]
-    options = [".temp 27"]
+    options = [f".temp {temp_c:g}"]
     if pruned.scale is not None:
         options.append(f".option scale={pruned.scale:.6g}")
     text = deck(f"dynshare: device charge tables at corner {corner}", pruned.path, lines, commands, options)
@@ -156,7 +157,7 @@ def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, ru
             "held": out_held, "calibration": float(scale)}
 
 
-def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> dict:
+def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
     """Pass currents: one DC sweep of the near terminal per drain–source
     voltage of :data:`VDS_GRID` (the far terminal rides on the near one
     through a source: above it for an nmos, below it for a pmos)."""
@@ -173,7 +174,7 @@ def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, r
         rows.append(k)
     if not rows:
         return {}
-    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    options = [f".temp {temp_c:g}"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
     commands = []
     for j, vds in enumerate(VDS_GRID):
         commands += [f"alter Vdsn dc = {vds:.6g}", f"alter Vdsp dc = {-vds:.6g}",
@@ -190,7 +191,7 @@ def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, r
     return out
 
 
-def measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck) -> float:
+def measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> float:
     """The dynamic node after the clock edge with nothing sharing it: its
     devices (clocked ones with the edge, the others off), its receivers and
     a capacitor for the rest of its charge."""
@@ -213,7 +214,7 @@ def measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck
         else:
             gate = "0" if t == "nmos" else "vdd"
         lines.append(transistor_line(f"d{k}", ("x", gate, far_node, body), names[t], kind[t], pruned.scale, w, l))
-    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    options = [f".temp {temp_c:g}"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
     commands = [f"tran 5p {0.51 + window:.6g}n", f"meas tran vend find v(x) at={0.5 + window:.6g}n", "print vend"]
     text = deck(f"dynshare: clock edge at corner {corner}", pruned.path, lines, commands, options)
     return run_deck(text, f"clock edge at corner {corner}", expect=["vend"]).scalar("vend")

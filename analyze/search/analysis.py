@@ -112,7 +112,8 @@ class StageResult:
         The model of the final voltage and threshold: ``"level-1 (tech
         file)"`` (the lumped model with the tech file's numbers) or
         ``"foundry models, corner C"`` (device charges and switching point
-        measured from ``[models]``, :mod:`analyze.search.foundry`).
+        measured from ``[models]``, :mod:`analyze.search.foundry`), with
+        ``", T C"`` (°C) after it when ``[models] temperature`` is not 27.
     physics_note : str or None
     """
 
@@ -243,6 +244,8 @@ def analyze_stage(
                 wc = replace(found_f, v_final_linear=wc.v_final_linear if wc else found_f.v_final_linear)
             threshold = prep.threshold_v
             physics = f"foundry models, corner {prep.corner or '(library)'}"
+            if tech.models.temperature_c != 27.0:
+                physics += f", {tech.models.temperature_c:g} C"
             if chosen is not None:
                 physics_note = _ranked_verdict_note(prep, circuit, stage, tech, constraints, wc, chosen)
     v = model.to_volts(model.vdd) if wc is None else wc.v_final

@@ -337,7 +337,7 @@ def stage_deck(circuit: Circuit, stage: Stage, tech: Tech, runs: list[Run], *, i
         commands.append(f"dc Vrxi 0 {vdd:.6g} {vdd / 900:.6g}")
         for j in range(len(thresholds)):
             commands += [f"meas dc vm{j} find v(rxi) when v(rxo{j})=v(rxi)", f"print vm{j}"]
-    options = [".option rshunt=1e12", ".temp 27"]
+    options = [".option rshunt=1e12", f".temp {tech.models.temperature_c if tech.models else 27.0:g}"]
     if scale is not None:
         # lengths are written in the library's unit: say so, whether or not
         # the model file sets it itself

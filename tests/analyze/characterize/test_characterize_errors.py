@@ -120,3 +120,12 @@ def test_models_without_junctions_are_an_input_error(tmp_path, capsys):
     assert _one_error_line(err).endswith("nch_dev (tt): the models give no junction capacitance for the drain "
                                          "geometry AD/PD; cannot fit cj, cjsw, cjswg")
     assert not (tmp_path / "o.toml").exists()
+
+
+def test_temperature_out_of_range_writes_nothing(tmp_path, capsys):
+    tech = _tech(tmp_path)
+    code, err = _run(capsys, "--tech", str(tech), "--out", str(tmp_path / "o.toml"), "--temp", "-300")
+    assert code == 2
+    assert _one_error_line(err) == (f"error: {tech}: --temp: must be a temperature in C above -273.15 and "
+                                    "at most 500, got -300")
+    assert not (tmp_path / "o.toml").exists()

@@ -83,12 +83,12 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
     passes = sorted(stage.evaluation)
     shared = dt.stage_tables(circuit, stage, tech, levels, passes=passes)
 
-    def every_device(items, *rest):
+    def every_device(items, *rest, temp_c):
         # the measurement before devices were shared: every item in the decks
-        made = tm.measure_charges(items, *rest)
-        made["i"] = tm.measure_currents(items, *rest)
+        made = tm.measure_charges(items, *rest, temp_c=temp_c)
+        made["i"] = tm.measure_currents(items, *rest, temp_c=temp_c)
         rx = [k for k, it in enumerate(items) if it[0] == "r"]
-        resp = tm.measure_responses([items[k] for k in rx], *rest, tm.GRID_STEPS)
+        resp = tm.measure_responses([items[k] for k in rx], *rest, tm.GRID_STEPS, temp_c)
         made["response_q"] = {str(k): resp["q"][m] for m, k in enumerate(rx)}
         made["response_i"] = {str(k): resp["i"][m] for m, k in enumerate(rx)}
         return made

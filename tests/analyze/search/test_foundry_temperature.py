@@ -19,11 +19,9 @@ temperature reaches the verdict.
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import pytest
 from sky130_src import private_cache  # noqa: F401 (fixture)
-from sky130_stages import characterised_techs, netlist, stages, write_tech
+from sky130_stages import against_simulation, characterised_techs, meets_simulation, netlist, stages, write_tech
 
 pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
 
@@ -61,10 +59,6 @@ def test_the_fit_records_its_temperature(techs):
 @pytest.mark.parametrize("point", POINTS, ids=[f"{c}-{t:g}C" for c, t in POINTS])
 @pytest.mark.parametrize("name", STAGES)
 def test_analysis_meets_simulation_at_temperature(techs, point, name, tmp_path):
-    from analyze.search.analysis import analyse_circuit, iter_counted_patterns
-    from analyze.search.cases import arrival_cases
-    from analyze.search.foundry import foundry_worst_case
-    from analyze.simulate.run import simulate_stage
     from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
@@ -74,20 +68,9 @@ def test_analysis_meets_simulation_at_temperature(techs, point, name, tmp_path):
     path = tmp_path / f"{name}.sp"
     path.write_text(netlist(name, ports, devices, caps))
     circuit = read_schematic(path, tech)
-    _, (r,) = analyse_circuit(circuit, tech)
+    r, rows = against_simulation(circuit, tech, corner)
     assert r.physics == f"foundry models, corner {corner}, {temp:g} C"
-    sign = 1 if r.stage.polarity == "n" else -1
-    for case in arrival_cases(circuit, r.stage, None):
-        fo = foundry_worst_case(circuit, r.stage, tech, None, list(iter_counted_patterns(circuit, r.stage, tech)),
-                                cases=(case,))
-        (sim,) = [s for s in simulate_stage(circuit, replace(r, worst_case=fo.worst), tech, None, [corner],
-                                            count=1) if s.case == case]
-        v_sim = sim.v_min_without_keeper if sim.v_min_without_keeper is not None else sim.v_min
-        err = sign * (fo.worst.v_final - v_sim)  # positive: the analysis is optimistic
-        assert -0.020 <= err <= 0.010, (case, fo.worst.inputs, fo.worst.v_final, v_sim)
-        assert fo.threshold_v == pytest.approx(sim.threshold_v, abs=2e-3)
-        verdict = sign * (fo.worst.v_final - fo.threshold_v) >= tech.guard
-        assert verdict == (sign * (v_sim - sim.threshold_v) >= tech.guard)
+    meets_simulation(r, rows, tech)  # the limits, as at 27 °C
     if (name, point) == ("NAND4W", ("ff", 125.0)):
         # fails hot with settled inputs (passes at ff 27 °C: test_foundry_accuracy.py)
         assert r.status == "fail" and r.worst_case.case == "settled"

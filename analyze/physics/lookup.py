@@ -22,8 +22,6 @@ from __future__ import annotations
 import math
 from bisect import bisect_right
 
-import numpy as np
-
 __all__ = ["interp_point", "interp_rows", "uniform_lookup", "bilinear_lookup", "bilinear_lookups",
            "cell_finder"]
 
@@ -140,8 +138,8 @@ def uniform_lookup(grid, values):
     >>> uniform_lookup([0.0, 1e-10, 1e-9], [0.0, 1.0, 2.0])(5e-11)  # uneven at any scale
     0.5
     """
-    grid = np.asarray(grid, dtype=float).tolist()
-    values = np.asarray(values, dtype=float).tolist()
+    grid = [float(x) for x in grid]
+    values = [float(y) for y in values]
     cell = cell_finder(grid)
 
     def f(x):
@@ -204,9 +202,9 @@ def bilinear_lookups(xs, ys, tables):
     >>> f(0.5, 0.25, None)
     [0.75, 1.0]
     """
-    tabs = [np.asarray(table, dtype=float).tolist() for table in tables]
-    cx = cell_finder(np.asarray(xs, dtype=float).tolist())
-    cy = cell_finder(np.asarray(ys, dtype=float).tolist())
+    tabs = [[[float(v) for v in row] for row in table] for table in tables]
+    cx = cell_finder([float(x) for x in xs])
+    cy = cell_finder([float(y) for y in ys])
 
     def f(x, y, nan):
         i, s = cx(x)
@@ -235,9 +233,7 @@ def cell_finder(grid: list):
     """
     n = len(grid)
     x0, step = grid[0], (grid[-1] - grid[0]) / (n - 1)
-    # (the test in one numpy pass: the grids are a few hundred points, made per stage)
-    even = step > 0.0 and bool(np.all(np.abs(np.asarray(grid, dtype=float) - (x0 + np.arange(n) * step))
-                                      <= 1e-9 * step))
+    even = step > 0.0 and all(abs(grid[k] - (x0 + k * step)) <= 1e-9 * step for k in range(n))
     last = n - 1
 
     if even:

@@ -10,9 +10,16 @@ arrival case with ngspice and the foundry models (``--simulate``'s decks,
 keeper in and tied off).  The simulation time is measured on up to
 ``--sample`` distinct patterns and scaled to all counted patterns × cases
 (ngspice time is linear in the cases once each deck is full; said in the
-output).  Run by hand::
+output).
 
-    python3 tests/bench/bench_foundry_speed.py [--corner tt] [--sample 8] [--stages NAND2 ...]
+With ``--shipped`` the simulation is also estimated with the model library
+as the foundry ships it (``.lib sky130.lib.spice CORNER``) in place of
+the pruned file ``--simulate`` loads: one ngspice run of one nmos's
+operating point measures the load with each, and every case of a stage is
+counted as one run with the shipped library (its load once, then each
+case's simulated time less the pruned file's load).  Run by hand::
+
+    python3 tests/bench/bench_foundry_speed.py [--corner tt] [--sample 8] [--stages NAND2 ...] [--shipped]
 """
 
 from __future__ import annotations
@@ -36,6 +43,8 @@ def main(argv=None) -> int:
     ap.add_argument("--warm-runs", type=int, default=5, help="warm checks per stage; the median is printed")
     ap.add_argument("--wide", type=int, nargs="*", default=[16, 24],
                     help="legs of the wide ORs timed after the ten stages (2 inputs a leg; not simulated)")
+    ap.add_argument("--shipped", action="store_true",
+                    help="also estimate simulating with the library as shipped (one ngspice run of ~30-45 s)")
     args = ap.parse_args(argv)
     import sky130_stages as bs
 
@@ -46,8 +55,13 @@ def main(argv=None) -> int:
     tmp = tempfile.mkdtemp(prefix="bench-foundry-speed-")
     tech = load_tech(bs.characterised_techs([args.corner], tmp)[args.corner])
     print(f"corner {args.corner}; load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
+    loads = library_loads(tech, args.corner) if args.shipped else None
+    if loads:
+        print(f"ngspice, one nmos operating point: {loads[0]:.2f} s with the library as shipped, "
+              f"{loads[1]:.2f} s with the pruned file")
     print(f"{'stage':<8} {'patterns':>8} {'cases':>5} {'check cold':>10} {'check warm':>10} "
-          f"{'sim/case':>8} {'sim all (est.)':>14} {'× cold':>8} {'× warm':>8}")
+          f"{'sim/case':>8} {'sim all (est.)':>14} {'× cold':>8} {'× warm':>8}"
+          + (f" {'shipped (est.)':>14} {'× warm':>8}" if loads else ""))
     saved = os.environ.get("DYNSHARE_CACHE")
     for name, circuit in bs.stage_circuits(tech, tmp, args.stages):
         cold, warm, r = cold_and_warm(circuit, tech, tmp, args.warm_runs)
@@ -62,10 +76,39 @@ def main(argv=None) -> int:
         sim_time = time.perf_counter() - t0
         per_case = sim_time / max(1, len(sims))
         everything = per_case * patterns * n_cases
+        shipped = ""
+        if loads:
+            # one run with the shipped library: its load once, then each
+            # case's time less the pruned file's load
+            one_run = loads[0] + max(0.0, per_case - loads[1]) * patterns * n_cases
+            shipped = f" {one_run:>13.0f}s {one_run / warm:>8.0f}"
         print(f"{name:<8} {patterns:>8} {n_cases:>5} {cold:>9.2f}s {warm:>9.3f}s {per_case:>7.2f}s "
-              f"{everything:>13.0f}s {everything / cold:>8.0f} {everything / warm:>8.0f}", flush=True)
+              f"{everything:>13.0f}s {everything / cold:>8.0f} {everything / warm:>8.0f}{shipped}", flush=True)
     wide(args, tech, tmp)
     return 0
+
+
+def library_loads(tech, corner):
+    """Seconds of one ngspice run of one nmos's operating point with the
+    model library as shipped (``.lib LIBRARY CORNER``) and with the pruned
+    file of the same corner (its ``.include``): (shipped, pruned)."""
+    from analyze.simulator.instances import transistor_line
+    from analyze.simulator.models import prune_models
+    from analyze.simulator.ngspice import deck, run_deck
+
+    models = tech.models
+    pruned = prune_models(models, corner, [models.nmos])
+    line = transistor_line("1", ("d", "g", "0", "0"), models.nmos, pruned.kinds.get(models.nmos.lower(), "subckt"),
+                           pruned.scale, 1.0, 0.15)
+    circuit = [f"Vd d 0 {tech.vdd}", f"Vg g 0 {tech.vdd}", line]
+    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    out = []
+    for include, head in ((None, [f'.lib "{os.path.abspath(models.library)}" {corner}']), (pruned.path, [])):
+        text = deck("bench: model library load", include, circuit, ["op", "print i(Vd)"], head + options)
+        t0 = time.perf_counter()
+        run_deck(text, "model library load", timeout=900)
+        out.append(time.perf_counter() - t0)
+    return tuple(out)
 
 
 def cold_and_warm(circuit, tech, tmp, warm_runs):

@@ -99,7 +99,7 @@ def run(args) -> int:
     length = args.length or models.length_um
     temp_c = models.temperature_c if args.temp is None else args.temp
     if not -273.15 < temp_c <= 500.0:
-        raise InputError(args.tech, f"must be a temperature in C above -273.15 and at most 500, got {temp_c:g}",
+        raise InputError(args.tech, f"must be a temperature in °C above -273.15 and at most 500, got {temp_c:g}",
                          "--temp")
     for corner in corners:  # every section and device found before anything is simulated
         prune_models(models, corner, [models.nmos, models.pmos])

@@ -182,22 +182,23 @@ class NodeCharge:
         junction part's formula valid.
 
         The depletion formula needs ``1 + VR/PB > 0`` (it holds to a forward
-        bias of PB); the margin is 0.9 × the smallest PB among the parts
-        that are present (C0 > 0) and graded (M > 0), since a part with
-        M = 0 is a linear capacitor, valid at any bias (a fit to a flat
-        sidewall may leave its PB anywhere); 0.9 V when no part bends.
+        bias of PB); the margin is 0.9 × the smallest PB among the graded
+        parts (M > 0), present or not (the array path evaluates every part,
+        and 0 × NaN is NaN), since a part with M = 0 is a linear capacitor,
+        valid at any bias (a fit to a flat sidewall may leave its PB
+        anywhere); 0.9 V when no part bends.
 
         Examples
         --------
         >>> kw = dict(body_high=np.zeros(2, dtype=bool), vdd=1.8)
-        >>> NodeCharge(1.0, np.array([1.0, 0.2]), np.array([0.7, 0.05]), np.array([0.4, 0.0]), **kw).forward_margin()
+        >>> round(NodeCharge(1.0, np.array([1.0, 0.2]), np.array([0.7, 0.05]), np.array([0.4, 0.0]),
+        ...                  **kw).forward_margin(), 12)
         0.63
         >>> NodeCharge.linear(1.0, 1.8).forward_margin()
         0.9
         """
-        bends = [float(p) for c, p, m in zip(self.c0.tolist(), self.pb.tolist(), self.m.tolist())
-                 if c > 0.0 and m > 0.0]
-        return round(0.9 * min(bends), 12) if bends else 0.9
+        bends = [float(p) for p, m in zip(self.pb.tolist(), self.m.tolist()) if m > 0.0]
+        return 0.9 * min(bends) if bends else 0.9
 
     def like(self, c_lin: float, c0: np.ndarray, vdd: float | None = None) -> "NodeCharge":
         """A node charge with these junction parts (``pb``, ``m``, body) and

@@ -81,7 +81,6 @@ from extract.tech import Tech
 __all__ = ["StageTables", "stage_tables", "GRID_STEPS", "VDS_GRID"]
 
 
-
 @dataclass
 class StageTables:
     """Measured charge tables of one stage's devices.
@@ -346,7 +345,7 @@ def _digest(path: str) -> bytes:
     return digest
 
 
-def _key(path: str, corner, vdd: float, items, temp_c: float = 27.0) -> str:
+def _key(path: str, corner, vdd: float, items, temp_c: float) -> str:
     h = hashlib.sha256()
     h.update(_digest(path))
     # everything the stored numbers depend on besides the items: the grids

@@ -1,6 +1,6 @@
 """Table lookup of one point: the same number as ``numpy.interp``, faster.
 
-The charge-conservation solver (:mod:`analyze.physics.device_charge`) looks
+The charge-conservation solver (:mod:`analyze.physics.settling`) looks
 up a measured table at one voltage thousands of times per stage (inside a
 stiff ODE's right-hand side).  ``numpy.interp`` on a scalar costs a few
 microseconds of argument handling for a handful of floating-point

@@ -1,6 +1,6 @@
 """Charge from the currents of sources on quasi-static ramps.
 
-The device and receiver tables (:mod:`analyze.physics.device_tables`,
+The device and receiver tables (:mod:`analyze.physics.table_measurement`,
 :mod:`analyze.physics.receiver_tables`) are measured by ramping voltage
 sources slowly and integrating the current each one delivers; a 1 fF
 capacitor on a ramp of its own calibrates sign and integration.

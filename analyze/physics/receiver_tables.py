@@ -64,8 +64,8 @@ def output_levels(vdd: float) -> np.ndarray:
     return vdd * k / OUTPUT_STEPS
 
 
-def measure_responses(items, names, pruned, vdd: float, corner, transistor_line, deck, run_deck, steps: int,
-                      temp_c: float = 27.0) -> dict:
+def measure_responses(items, names, pruned, vdd: float, corner, transistor_line, deck, run_deck, steps: int, *,
+                      temp_c: float) -> dict:
     """Measure the response surfaces of receiver ``items``.
 
     Parameters

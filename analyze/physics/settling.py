@@ -36,6 +36,7 @@ from analyze.physics.creep import creep_network
 from analyze.physics.device_charge import ChargeContext, GateLevels
 from analyze.physics.threshold import pass_limit
 from analyze.physics.transient import receiver_transient
+from extract.errors import InputError
 
 __all__ = ["final_voltage_with_devices", "Settling", "settle", "BOUND_TOLERANCE"]
 
@@ -130,6 +131,14 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
         With the value when no creep is needed; else with the bound the
         equalised voltage V_eq gives, when proven.
 
+    Raises
+    ------
+    InputError
+        Naming the tech file and the stage, when no voltage within the
+        junction formula's range past the rails
+        (:meth:`analyze.physics.charge.NodeCharge.forward_margin`) holds
+        the charge (fitted PB values too small for the node's swing).
+
     Notes
     -----
     The bound: the internal nodes end between the creep's start and V_eq
@@ -185,7 +194,19 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
         return sum(q_node(n, v, 1) for n in group) - total
 
     margin = min(rests[n].forward_margin() for n in group)
-    v_eq = brentq(f_equal, -margin, vdd + margin, xtol=1e-7)
+    def root(f, what):
+        """The voltage where ``f`` is 0 within the junction formula's range,
+        or a one-line error naming the tech file (the range is set by its
+        fitted PB values, :meth:`NodeCharge.forward_margin`)."""
+        try:
+            return brentq(f, -margin, vdd + margin, xtol=1e-7)
+        except ValueError:
+            raise InputError(tech.path or "tech", f"no voltage from {-margin:.3g} to {vdd + margin:.3g} V holds "
+                             f"{what} (the junction formula holds to 0.9 x the smallest graded pb past the "
+                             "rails): the mos.nmos/mos.pmos junction numbers do not fit these models",
+                             f"stage {stage.dynamic_node}") from None
+
+    v_eq = root(f_equal, "the charge shared after the clock edge")
     x = stage.dynamic_node
     keys = {n: (n, tuple(a for _, a in terms[n])) for n in group}
 
@@ -259,15 +280,15 @@ def settle(ctx: ChargeContext, group: list[str], levels: GateLevels, start: dict
     v_int0 = None
     if any((start[n] > 0.5 * vdd) == n_type for n in internal):
         q_int = sum(q_node(n, start[n], 0) for n in internal)
-        v_int0 = brentq(lambda v: sum(q_node(n, v, 1) for n in internal) - q_int, -margin, vdd + margin,
-                        xtol=1e-7)
+        v_int0 = root(lambda v: sum(q_node(n, v, 1) for n in internal) - q_int,
+                      "the internal nodes' shared charge")
     links = [ln for ln in links if ln[0] in tables.currents]
     v_end = {n: v_lim if v_int0 is None else (max(v_lim, v_int0) if n_type else min(v_lim, v_int0))
              for n in internal}
 
     def x_final(v_end):
         rest = total - sum(q_node(n, v_end[n], 1) for n in internal)
-        return brentq(lambda v: q_node(x, v, 1) - rest, -margin, vdd + margin, xtol=1e-7)
+        return root(lambda v: q_node(x, v, 1) - rest, "the dynamic node's charge")
 
     if not links:
         return known(x_final(v_end))

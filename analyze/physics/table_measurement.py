@@ -42,7 +42,7 @@ GRID_STEPS = 180
 VDS_GRID = (0.002, 0.005, 0.01, 0.02, 0.04, 0.08, 0.15, 0.3, 0.6, 1.0, 1.8)
 
 
-def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
+def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, *, temp_c: float) -> dict:
     """:func:`measure_charges` and :func:`measure_currents` of ``items`` with each
     distinct measurement made once: items that differ only in the device's
     name (the legs of a wide OR: the same type, W, L and gate level) share
@@ -58,13 +58,14 @@ def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, r
         if distinct[u] is None:
             distinct[u] = it
     receivers = [u for u, it in enumerate(distinct) if it[0] == "r"]
-    made = measure_charges(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c)
-    made_i = measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c)
+    made = measure_charges(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=temp_c)
+    made_i = measure_currents(distinct, names, pruned, vdd, corner, transistor_line, deck, run_deck,
+                              temp_c=temp_c)
     # one after another: run side by side in threads, the three runs took
     # several times longer on a 2-core machine (measured; Debian's ngspice
     # is built with OpenMP, and timings there swing widely)
     made_r = measure_responses([distinct[u] for u in receivers], names, pruned, vdd, corner, transistor_line, deck,
-                               run_deck, GRID_STEPS, temp_c)
+                               run_deck, GRID_STEPS, temp_c=temp_c)
     at = {u: m for m, u in enumerate(receivers)}
     held = {f"{h}{k}": made["held"][f"{h}{u}"] for k, u in enumerate(which) for h in ("lo", "hi")
             if f"{h}{u}" in made["held"]}
@@ -75,7 +76,7 @@ def measure_distinct(items, names, pruned, vdd, corner, transistor_line, deck, r
             "response_i": {str(k): made_r["i"][at[u]] for k, u in enumerate(which) if u in at}}
 
 
-def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
+def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, *, temp_c: float) -> dict:
     """One transient and one DC sweep: the charges by integrating the
     currents that quasi-static ramps draw (gate ramp 0 -> level in the first
     ns, then the tied source/drain ramp 0 -> VDD over 2 ns); a 1 fF capacitor
@@ -157,7 +158,7 @@ def measure_charges(items, names, pruned, vdd, corner, transistor_line, deck, ru
             "held": out_held, "calibration": float(scale)}
 
 
-def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> dict:
+def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, run_deck, *, temp_c: float) -> dict:
     """Pass currents: one DC sweep of the near terminal per drain–source
     voltage of :data:`VDS_GRID` (the far terminal rides on the near one
     through a source: above it for an nmos, below it for a pmos)."""
@@ -191,7 +192,7 @@ def measure_currents(items, names, pruned, vdd, corner, transistor_line, deck, r
     return out
 
 
-def measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck, temp_c=27.0) -> float:
+def measure_clock(clock_items, names, pruned, vdd, corner, transistor_line, deck, run_deck, *, temp_c: float) -> float:
     """The dynamic node after the clock edge with nothing sharing it: its
     devices (clocked ones with the edge, the others off), its receivers and
     a capacitor for the rest of its charge."""

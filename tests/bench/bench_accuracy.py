@@ -10,7 +10,10 @@ evaluation window and their difference (n-type: positive = optimistic), the
 level-1 model's value for comparison, and the verdicts; then the largest
 errors.  Run by hand::
 
-    python3 tests/bench/bench_accuracy.py [--corners tt ss ff] [--stages NAND3W ...]
+    python3 tests/bench/bench_accuracy.py [--corners tt ss ff] [--stages NAND3W ...] [--temp C]
+
+(``--temp``: the tech files characterised and the stages simulated at that
+temperature, ``[models] temperature``; 27 °C without it.)
 """
 
 from __future__ import annotations
@@ -30,6 +33,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--corners", nargs="+", default=["tt", "ss", "ff"])
     ap.add_argument("--stages", nargs="*")
+    ap.add_argument("--temp", type=float, default=None, help="temperature, C (default 27)")
     args = ap.parse_args(argv)
     import sky130_stages as bs
     from sky130_stages import characterised_techs
@@ -40,7 +44,7 @@ def main(argv=None) -> int:
     from dataclasses import replace
 
     tmp = tempfile.mkdtemp(prefix="bench-accuracy-")
-    techs = characterised_techs(args.corners, tmp)
+    techs = characterised_techs(args.corners, tmp, args.temp)
     rows = []
     print(f"{'stage':<8} {'corner':<6} {'case':<8} {'analysis':>8} {'sim':>7} {'error':>8} {'level-1':>7} "
           f"{'an':>4} {'sim':>4}   s")

@@ -101,9 +101,12 @@ def library_loads(tech, corner):
     line = transistor_line("1", ("d", "g", "0", "0"), models.nmos, pruned.kinds.get(models.nmos.lower(), "subckt"),
                            pruned.scale, 1.0, 0.15)
     circuit = [f"Vd d 0 {tech.vdd}", f"Vg g 0 {tech.vdd}", line]
-    options = [".temp 27"] + ([f".option scale={pruned.scale:.6g}"] if pruned.scale is not None else [])
+    options = [f".temp {models.temperature_c:g}"] + ([f".option scale={pruned.scale:.6g}"]
+                                                     if pruned.scale is not None else [])
+    shipped = ((None, [f'.lib "{os.path.abspath(models.library)}" {corner}']) if corner else
+               (os.path.abspath(models.library), []))
     out = []
-    for include, head in ((None, [f'.lib "{os.path.abspath(models.library)}" {corner}']), (pruned.path, [])):
+    for include, head in (shipped, (pruned.path, [])):
         text = deck("bench: model library load", include, circuit, ["op", "print i(Vd)"], head + options)
         t0 = time.perf_counter()
         run_deck(text, "model library load", timeout=900)

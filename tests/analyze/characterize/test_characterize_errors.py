@@ -126,6 +126,6 @@ def test_temperature_out_of_range_writes_nothing(tmp_path, capsys):
     tech = _tech(tmp_path)
     code, err = _run(capsys, "--tech", str(tech), "--out", str(tmp_path / "o.toml"), "--temp", "-300")
     assert code == 2
-    assert _one_error_line(err) == (f"error: {tech}: --temp: must be a temperature in C above -273.15 and "
+    assert _one_error_line(err) == (f"error: {tech}: --temp: must be a temperature in °C above -273.15 and "
                                     "at most 500, got -300")
     assert not (tmp_path / "o.toml").exists()

@@ -50,7 +50,7 @@ def measured(tmp_path_factory):
     tech = load_tech(characterised_techs(["tt"], str(tmp_path_factory.mktemp("fit")))["tt"])
     pruned = prune_models(tech.models, "tt", [N, P])
     made = measure_responses([["r", "MN", WN, LN, WP, LP]], {"nmos": N, "pmos": P}, pruned, 1.8, "tt",
-                             transistor_line, deck, run_deck, 180)
+                             transistor_line, deck, run_deck, 180, temp_c=27.0)
     resp = ReceiverResponse(np.linspace(0, 1.8, 181), output_levels(1.8), made["q"][0], made["i"][0])
     return tech, pruned, made, resp
 
@@ -106,7 +106,7 @@ def test_surface_at_the_held_levels_is_the_held_table(measured):
     from analyze.simulator.ngspice import deck, run_deck
 
     held = measure_charges([["r", "MN", WN, LN, WP, LP]], {"nmos": N, "pmos": P}, pruned, 1.8, "tt", transistor_line,
-                    deck, run_deck)["held"]
+                    deck, run_deck, temp_c=27.0)["held"]
     q = np.asarray(made["q"][0])
     levels = list(np.round(output_levels(1.8), 9))
     at0, at_vdd = levels.index(0.0), levels.index(1.8)

@@ -20,7 +20,7 @@ from analyze.physics import table_measurement as tm
 def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
     seen = {}
 
-    def fake_measure(items, *_):
+    def fake_measure(items, *_, temp_c):
         seen["q"] = [tuple(it) for it in items]
         # each distinct item's charge row is its index, written out
         return {"q": [[float(k)] for k in range(len(items))],
@@ -29,11 +29,11 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
                          if it[0] == "r" for h in ("lo", "hi")},
                 "calibration": 1.0}
 
-    def fake_currents(items, *_):
+    def fake_currents(items, *_, temp_c):
         seen["i"] = [tuple(it) for it in items]
         return {str(k): [[10.0 * k]] for k, it in enumerate(items) if it[0] == "i"}
 
-    def fake_responses(items, *_args):
+    def fake_responses(items, *_args, temp_c):
         seen["r"] = [tuple(it) for it in items]
         return {"q": [[[100.0 + k]] for k in range(len(items))], "i": [[[200.0 + k]] for k in range(len(items))]}
 
@@ -48,7 +48,7 @@ def test_items_differing_only_in_name_share_a_measurement(monkeypatch):
              ["i", "M3", "nmos", 1.0, 0.15],
              ["r", "M8", 0.42, 0.15, 0.84, 0.15],
              ["r", "M9", 0.42, 0.15, 0.84, 0.15]]      # = item 6
-    out = tm.measure_distinct(items, {}, None, 1.8, "tt", None, None, None)
+    out = tm.measure_distinct(items, {}, None, 1.8, "tt", None, None, None, temp_c=27.0)
     # distinct items in first-met order: 0, 2, 3, 5, 6 -> 0..4
     assert seen["q"] == seen["i"] == [tuple(items[k]) for k in (0, 2, 3, 5, 6)]
     assert out["q"] == [[0.0], [0.0], [1.0], [2.0], [2.0], [3.0], [4.0], [4.0]]
@@ -88,7 +88,7 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
         made = tm.measure_charges(items, *rest, temp_c=temp_c)
         made["i"] = tm.measure_currents(items, *rest, temp_c=temp_c)
         rx = [k for k, it in enumerate(items) if it[0] == "r"]
-        resp = tm.measure_responses([items[k] for k in rx], *rest, tm.GRID_STEPS, temp_c)
+        resp = tm.measure_responses([items[k] for k in rx], *rest, tm.GRID_STEPS, temp_c=temp_c)
         made["response_q"] = {str(k): resp["q"][m] for m, k in enumerate(rx)}
         made["response_i"] = {str(k): resp["i"][m] for m, k in enumerate(rx)}
         return made
@@ -107,3 +107,22 @@ def test_wide_or_tables_as_if_every_device_were_measured(tmp_path, monkeypatch):
         assert shared.thresholds[name] == pytest.approx(alone.thresholds[name], abs=1e-6)
         for a, b in zip(shared.responses[name], alone.responses[name]):
             assert np.allclose(a, b, rtol=1e-6, atol=1e-9)
+
+
+def test_the_cache_key_holds_the_temperature(tmp_path):
+    # tables measured at one temperature are never returned for another; at 27 °C the key
+    # is the one made before the temperature was part of it (caches stay valid)
+    import hashlib
+    import json
+
+    from analyze.physics.receiver_tables import RAMP_NS, RAMP_START_NS, output_levels
+
+    model = tmp_path / "m.spice"
+    model.write_text("* a model file\n")
+    keys = {t: dt._key(str(model), "ff", 1.8, [["t", "M1"]], t) for t in (27.0, 125.0, -40.0)}
+    assert len(set(keys.values())) == 3
+    h = hashlib.sha256()
+    h.update(hashlib.sha256(model.read_bytes()).digest())
+    h.update(json.dumps(["ramp-integral-7", "ff", 1.8, dt.GRID_STEPS, output_levels(1.8).tolist(),
+                         RAMP_START_NS, RAMP_NS, [["t", "M1"]]], sort_keys=True).encode())
+    assert keys[27.0] == h.hexdigest()[:24]

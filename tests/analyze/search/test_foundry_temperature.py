@@ -105,3 +105,28 @@ def test_every_deck_runs_at_the_temperature(techs, tmp_path, monkeypatch):
     for text in seen:
         temps = [line for line in text.splitlines() if line.lower().startswith(".temp")]
         assert temps == [".temp 125"], text[:200]
+
+
+def test_a_lost_bracket_is_a_one_line_error(techs, tmp_path, monkeypatch):
+    # At ff 125 °C the fit leaves the nmos field sidewall flat (M = 0) at PB = 0.05 V; when
+    # that PB set the bracket past the rails (0.045 V), the node after the clock edge
+    # (about 1.9 V, above VDD) lay outside it and the root search raised a traceback.  The
+    # bracket now comes from the graded parts only; forced back to 0.045 V, the check stops
+    # with one line naming the tech file and the stage.
+    from analyze.physics.charge import NodeCharge
+    from analyze.search.analysis import analyse_circuit
+    from extract.errors import InputError
+    from extract.netlist.reader import read_schematic
+    from extract.techfile import load_tech
+
+    tech = load_tech(techs[("ff", 125.0)])
+    ports, devices, caps = stages()["NAND3K"]
+    path = tmp_path / "NAND3K.sp"
+    path.write_text(netlist("NAND3K", ports, devices, caps))
+    circuit = read_schematic(path, tech)
+    monkeypatch.setattr(NodeCharge, "forward_margin", lambda self: 0.045)
+    with pytest.raises(InputError) as info:
+        analyse_circuit(circuit, tech)
+    line = str(info.value)
+    assert "\n" not in line and line.startswith(f"{tech.path}: stage X: no voltage from -0.045 to ")
+    assert "holds the charge shared after the clock edge" in line

@@ -117,16 +117,19 @@ def stage_block(result, circuit: Circuit, tech) -> str:
     elif result.flag_note:
         out.append(f"  fix: {result.flag_note}")
     if result.simulation:
-        out += simulation_lines(result)
+        out += simulation_lines(result, tech)
     return "\n".join(out) + "\n"
 
 
-def simulation_lines(result) -> list[str]:
+def simulation_lines(result, tech=None) -> list[str]:
     """The simulated cases of a stage as a small table, worst margin first
-    per corner, with the analysis verdict beside the simulated one."""
+    per corner, with the analysis verdict beside the simulated one (and the
+    temperature, from ``tech``'s ``[models]``, when it is not 27 °C)."""
     sims = result.simulation
     word = "v_min" if result.stage.polarity == "n" else "v_max"
-    out = [f"  simulation    ngspice with the foundry models; analysis said {result.analysis_status.upper()}, "
+    models = getattr(tech, "models", None)
+    at = f" at {models.temperature_c:g} C" if models is not None and models.temperature_c != 27.0 else ""
+    out = [f"  simulation    ngspice with the foundry models{at}; analysis said {result.analysis_status.upper()}, "
            f"simulation says {result.status.upper()}"]
     out += [f"    note: {note}" for note in getattr(result, "simulation_notes", [])]
     out += [

@@ -100,11 +100,18 @@ def test_every_deck_runs_at_the_temperature(techs, tmp_path, monkeypatch):
     path.write_text(netlist("NAND3K", ports, devices, caps))
     circuit = read_schematic(path, tech)
     _, (r,) = analyse_circuit(circuit, tech)
-    simulate_stage(circuit, r, tech, None, ["ff"], count=1)
+    sims = simulate_stage(circuit, r, tech, None, ["ff"], count=1)
     assert len(seen) >= 5  # charges, currents, receiver surfaces, clock edge, the stage's own deck
     for text in seen:
         temps = [line for line in text.splitlines() if line.lower().startswith(".temp")]
         assert temps == [".temp 125"], text[:200]
+    # and the text report's simulation block says so
+    from dataclasses import replace
+
+    from analyze.report.text import simulation_lines
+
+    head = simulation_lines(replace(r, simulation=sims, analysis_status=r.status), tech)[0]
+    assert head.startswith("  simulation    ngspice with the foundry models at 125 C; analysis said ")
 
 
 def test_a_lost_bracket_is_a_one_line_error(techs, tmp_path, monkeypatch):

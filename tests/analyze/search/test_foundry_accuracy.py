@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import pytest
 from sky130_src import private_cache  # noqa: F401 (fixture)
-from sky130_stages import against_simulation, characterised_techs, meets_simulation, netlist, stages
+from sky130_stages import against_simulation, characterised_techs, meets_simulation, stage_circuits
 
 pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
 
@@ -43,14 +43,10 @@ def techs(tmp_path_factory):
 @pytest.mark.parametrize("name", STAGES)
 def test_analysis_meets_simulation(techs, corner, name, tmp_path):
     from analyze.search.cases import arrival_cases
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
     tech = load_tech(techs[corner])
-    ports, devices, caps = stages()[name]
-    path = tmp_path / f"{name}.sp"
-    path.write_text(netlist(name, ports, devices, caps))
-    circuit = read_schematic(path, tech)
+    ((_, circuit),) = stage_circuits(tech, str(tmp_path), [name])
     r, rows = against_simulation(circuit, tech, corner)
     assert r.physics == f"foundry models, corner {corner}"
     meets_simulation(r, rows, tech)

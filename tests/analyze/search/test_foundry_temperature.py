@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import pytest
 from sky130_src import private_cache  # noqa: F401 (fixture)
-from sky130_stages import against_simulation, characterised_techs, meets_simulation, netlist, stages, write_tech
+from sky130_stages import against_simulation, characterised_techs, meets_simulation, stage_circuits, write_tech
 
 pytestmark = [pytest.mark.ngspice, pytest.mark.pdk]
 
@@ -59,15 +59,11 @@ def test_the_fit_records_its_temperature(techs):
 @pytest.mark.parametrize("point", POINTS, ids=[f"{c}-{t:g}C" for c, t in POINTS])
 @pytest.mark.parametrize("name", STAGES)
 def test_analysis_meets_simulation_at_temperature(techs, point, name, tmp_path):
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
     corner, temp = point
     tech = load_tech(techs[point])
-    ports, devices, caps = stages()[name]
-    path = tmp_path / f"{name}.sp"
-    path.write_text(netlist(name, ports, devices, caps))
-    circuit = read_schematic(path, tech)
+    ((_, circuit),) = stage_circuits(tech, str(tmp_path), [name])
     r, rows = against_simulation(circuit, tech, corner)
     assert r.physics == f"foundry models, corner {corner}, {temp:g} C"
     meets_simulation(r, rows, tech)  # the limits, as at 27 °C
@@ -82,7 +78,6 @@ def test_every_deck_runs_at_the_temperature(techs, tmp_path, monkeypatch):
     import analyze.simulator.ngspice as ngspice
     from analyze.search.analysis import analyse_circuit
     from analyze.simulate.run import simulate_stage
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
     monkeypatch.setenv("DYNSHARE_CACHE", str(tmp_path / "cache"))
@@ -95,10 +90,7 @@ def test_every_deck_runs_at_the_temperature(techs, tmp_path, monkeypatch):
 
     monkeypatch.setattr(ngspice, "run_deck", recording)
     tech = load_tech(techs[("ff", 125.0)])
-    ports, devices, caps = stages()["NAND3K"]
-    path = tmp_path / "NAND3K.sp"
-    path.write_text(netlist("NAND3K", ports, devices, caps))
-    circuit = read_schematic(path, tech)
+    ((_, circuit),) = stage_circuits(tech, str(tmp_path), ["NAND3K"])
     _, (r,) = analyse_circuit(circuit, tech)
     sims = simulate_stage(circuit, r, tech, None, ["ff"], count=1)
     assert len(seen) >= 5  # charges, currents, receiver surfaces, clock edge, the stage's own deck
@@ -123,14 +115,10 @@ def test_a_lost_bracket_is_a_one_line_error(techs, tmp_path, monkeypatch):
     from analyze.physics.charge import NodeCharge
     from analyze.search.analysis import analyse_circuit
     from extract.errors import InputError
-    from extract.netlist.reader import read_schematic
     from extract.techfile import load_tech
 
     tech = load_tech(techs[("ff", 125.0)])
-    ports, devices, caps = stages()["NAND3K"]
-    path = tmp_path / "NAND3K.sp"
-    path.write_text(netlist("NAND3K", ports, devices, caps))
-    circuit = read_schematic(path, tech)
+    ((_, circuit),) = stage_circuits(tech, str(tmp_path), ["NAND3K"])
     monkeypatch.setattr(NodeCharge, "forward_margin", lambda self: 0.045)
     with pytest.raises(InputError) as info:
         analyse_circuit(circuit, tech)
